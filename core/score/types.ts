@@ -1,0 +1,69 @@
+/** Inputs and outputs of core/score. All statistics here are per layer. */
+
+export interface ScoreOptions {
+  /** Top quantile that defines a unit's "top activations" (Network Dissection uses 0.005). */
+  topQuantile: number;      // default 0.005
+  /** Minimum size of the top set, whatever the quantile gives. */
+  minTopCount: number;      // default 20
+  /** A driver needs q <= this (Benjamini–Hochberg across all unit × label tests of the layer). */
+  maxQ: number;             // default 0.05
+  /** ...and AUROC >= this. */
+  minAuroc: number;         // default 0.75
+  /** Leinster–Cobbold order. */
+  diversityOrder: number;   // default 1
+  /** Dead: active on fewer than this fraction of probes. */
+  deadFraction: number;     // default 0.005
+  /** Dense: active on at least this fraction of probes ... */
+  denseFraction: number;    // default 0.5
+  /** ... and no label with |AUROC - 0.5| >= this. */
+  densePreference: number;  // default 0.1
+  /** Number of top examples kept per unit. */
+  topExamples: number;      // default 24
+}
+
+/** The labels of a probe set in the form the statistics need. */
+export interface LabelMatrix {
+  count: number;             // N probes
+  labels: string[];          // label names; index = id
+  labelOffsets: Int32Array;  // CSR, length N+1
+  labelIds: Int32Array;
+}
+
+/** Label × label similarity in [0, 1], 1 on the diagonal, row-major L×L. */
+export interface Relatedness {
+  labels: string[];
+  matrix: Float64Array;
+  /** Where each pair's value came from, for the docs and the UI: per row-major cell. */
+  source: ('identity' | 'concepts' | 'wordnet' | 'cooccurrence' | 'override')[];
+}
+
+/** Per unit × label statistics. */
+export interface LabelStat {
+  label: number;           // label id
+  n1: number;              // probes with the label
+  meanWith: number;
+  meanWithout: number;
+  auroc: number;
+  topHits: number;         // probes with the label inside the unit's top set
+  p: number;               // hypergeometric upper-tail p of topHits
+  q: number;               // BH q-value across the layer
+}
+
+export interface Driver { label: number; auroc: number; q: number; share: number }
+
+export interface UnitScore {
+  unit: number;
+  conceptCount: number;    // Leinster–Cobbold diversity of the driver mixture; 0 when no driver
+  selectivity: number;     // class selectivity index (Morcos et al. 2018)
+  flags: ('dead' | 'dense')[];
+  drivers: Driver[];       // sorted by share, largest first
+  explanation: { labels: number[]; iou: number } | null; // best OR-formula of up to 3 labels
+  evidence: number;        // sum over drivers of -log10(q), the tie-breaker
+  activeFraction: number;
+  mean: number;
+  max: number;
+  topThreshold: number;    // activation at the top-quantile cut
+  topProbes: Int32Array;   // probe indices of the top examples, highest first (ScoreOptions.topExamples)
+  topValues: Float32Array;
+  stats: LabelStat[];      // one per label, by label id
+}
