@@ -2,7 +2,7 @@
  * A small ONNX graph builder for tests and the sample-data script (the product only reads models).
  * Serializes with onnx-proto; initializers are stored as little-endian raw_data.
  */
-import { onnx } from 'onnx-proto';
+import { onnx, type OnnxProto } from './proto.ts';
 
 export type AttrValue =
   | { i: number }
@@ -57,7 +57,7 @@ const ELEM_CODE: Record<WriterElemType, number> = {
   bool: onnx.TensorProto.DataType.BOOL,
 };
 
-function valueInfo(v: ValueSpec): onnx.IValueInfoProto {
+function valueInfo(v: ValueSpec): OnnxProto.IValueInfoProto {
   return {
     name: v.name,
     type: {
@@ -69,7 +69,7 @@ function valueInfo(v: ValueSpec): onnx.IValueInfoProto {
   };
 }
 
-function tensorProto(t: TensorSpec): onnx.ITensorProto {
+function tensorProto(t: TensorSpec): OnnxProto.ITensorProto {
   const expected = t.dims.reduce((a, b) => a * b, 1);
   if (t.data.length !== expected) {
     throw new Error(`writer: tensor ${t.name} has ${t.data.length} values but dims [${t.dims}] need ${expected}`);
@@ -90,7 +90,7 @@ function tensorProto(t: TensorSpec): onnx.ITensorProto {
   };
 }
 
-function attribute(name: string, value: AttrValue): onnx.IAttributeProto {
+function attribute(name: string, value: AttrValue): OnnxProto.IAttributeProto {
   const T = onnx.AttributeProto.AttributeType;
   if ('i' in value) return { name, type: T.INT, i: value.i };
   if ('f' in value) return { name, type: T.FLOAT, f: value.f };
@@ -101,7 +101,7 @@ function attribute(name: string, value: AttrValue): onnx.IAttributeProto {
   return { name, type: T.GRAPH, g: graphProto(value.graph) };
 }
 
-function graphProto(spec: SubgraphSpec): onnx.IGraphProto {
+function graphProto(spec: SubgraphSpec): OnnxProto.IGraphProto {
   return {
     name: spec.name,
     input: spec.inputs.map(valueInfo),
@@ -128,7 +128,7 @@ function customDomains(nodes: NodeSpec[], into: Set<string>): Set<string> {
 
 /** Serialized ModelProto (ir_version 8, producer "skein-writer"). */
 export function buildModel(spec: GraphSpec): Uint8Array {
-  const opsetImport: onnx.IOperatorSetIdProto[] = [{ domain: '', version: spec.opset ?? 17 }];
+  const opsetImport: OnnxProto.IOperatorSetIdProto[] = [{ domain: '', version: spec.opset ?? 17 }];
   for (const domain of customDomains(spec.nodes, new Set())) opsetImport.push({ domain, version: 1 });
   const model = onnx.ModelProto.create({
     irVersion: 8,

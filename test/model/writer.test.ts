@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import * as ort from 'onnxruntime-node';
-import { onnx } from 'onnx-proto';
+import { onnx } from '../../core/model/proto.ts';
 import { buildModel } from '../../core/model/writer.ts';
 
 describe('buildModel', () => {
