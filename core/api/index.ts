@@ -1,0 +1,232 @@
+import fs from 'node:fs';
+import path from 'node:path';
+import crypto from 'node:crypto';
+import { stringify } from 'csv-stringify/sync';
+import { SkeinError, isSkeinError, type ErrorInfo } from '../errors.ts';
+import { readModel } from '../model/index.ts';
+import { openProbeSet, encodeNpyHeader } from '../probes/index.ts';
+import { extract, type ScanHooks } from '../extract/scan.ts';
+import { scoreStudy } from '../score/job.ts';
+import { openStudyDb, readRun, readLayers, findLayer, blobToFloats } from '../store/study.ts';
+import { rankRows, unitDetail, labelNames } from '../store/queries.ts';
+import { createScreenApi } from './screens.ts';
+import { requests, type Method, type Request, type JobState, type ScanResult, type StudySummary, type ProbeSummary, type ExportResult } from './contract.ts';
+
+export { requests };
+export type * from './contract.ts';
+
+/** What a transport hands the API: nothing global, everything passed in. */
+export interface ApiContext {
+  /** Electron's own better-sqlite3 build, when running inside Electron. */
+  nativeBinding?: string;
+  /**
+   * Browser mode: every path in every request must lie inside one of these folders (the demo folder, the user's
+   * data folder and folders named on the command line). Unset: any path (CLI, Electron with native dialogs).
+   */
+  allowedRoots?: string[];
+}
+
+/** Request fields that hold file or folder paths, checked against ApiContext.allowedRoots. */
+export const PATH_FIELDS = ['model', 'probes', 'study', 'out', 'dir'] as const;
+
+/** Resolves symlinks of the longest existing prefix, so a link cannot lead outside a root. */
+function realish(p: string): string {
+  let cur = path.resolve(p);
+  const tail: string[] = [];
+  while (!fs.existsSync(cur)) {
+    const parent = path.dirname(cur);
+    if (parent === cur) break;
+    tail.unshift(path.basename(cur));
+    cur = parent;
+  }
+  return path.join(fs.realpathSync(cur), ...tail);
+}
+
+export function isInsideRoots(p: string, roots: string[]): boolean {
+  const target = realish(p);
+  return roots.some((root) => {
+    const r = realish(root);
+    const rel = path.relative(r, target);
+    return rel === '' || (!rel.startsWith('..') && !path.isAbsolute(rel));
+  });
+}
+
+export function checkPaths(req: Record<string, unknown>, roots: string[] | undefined): void {
+  if (!roots) return;
+  for (const field of PATH_FIELDS) {
+    const v = req[field];
+    if (typeof v === 'string' && !isInsideRoots(v, roots)) {
+      throw new SkeinError({ code: 'request', file: v, where: field, message: `This path is outside the folders Skein may use in browser mode (${roots.join(', ')}). Move the file there or restart Skein naming its folder on the command line.` });
+    }
+  }
+}
+
+/** Validates a request body against its schema; the error names the field at fault. */
+export function parseRequest<M extends Method>(method: M, body: unknown): Request<M> {
+  const schema = requests[method];
+  if (!schema) throw new SkeinError({ code: 'request', where: 'method', message: `Unknown request "${String(method)}".` });
+  const r = schema.safeParse(body);
+  if (!r.success) {
+    const issue = r.error.issues[0];
+    throw new SkeinError({ code: 'request', where: issue.path.join('.') || '(body)', message: `Invalid request ${method}: ${issue.message}.` });
+  }
+  return r.data as Request<M>;
+}
+
+export function toErrorInfo(e: unknown): ErrorInfo {
+  if (isSkeinError(e)) return e.toJSON();
+  return { code: 'io', message: `Unexpected failure: ${(e as Error)?.message ?? String(e)}. Please report it with the steps that led here.` };
+}
+
+/** Runs extraction then scoring. Used directly by the CLI and through jobs by the screens. */
+export async function runScan(req: Request<'scan.start'>, hooks: ScanHooks = {}, ctx: ApiContext = {}): Promise<ScanResult> {
+  const ex = await extract(req, { ...hooks, nativeBinding: ctx.nativeBinding });
+  const db = openStudyDb(req.study, { nativeBinding: ctx.nativeBinding });
+  try {
+    const sc = scoreStudy(db, {}, { onProgress: hooks.onProgress, signal: hooks.signal });
+    return {
+      study: ex.study, probes: ex.probes, layers: ex.layers, chunksComputed: ex.chunksComputed, chunksReused: ex.chunksReused,
+      resumed: ex.resumed, scoresReused: sc.reused, extractSeconds: ex.seconds, scoreSeconds: sc.seconds,
+    };
+  } finally {
+    db.close();
+  }
+}
+
+/** Creates the API object: one method per request, each taking the validated request. */
+export function createApi(ctx: ApiContext = {}) {
+  const jobs = new Map<string, { state: JobState; abort: AbortController }>();
+  const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => {
+    const db = openStudyDb(file, { nativeBinding: ctx.nativeBinding });
+    try {
+      return fn(db);
+    } finally {
+      db.close();
+    }
+  };
+
+  const api = {
+    'model.layers': async (r: Request<'model.layers'>) => readModel(r.model),
+
+    'probes.inspect': async (r: Request<'probes.inspect'>): Promise<ProbeSummary> => {
+      const p = openProbeSet(r.probes);
+      const counts = new Array(p.labels.length).fill(0);
+      for (const id of p.labelIds) counts[id]++;
+      return {
+        dir: p.dir, name: p.name, fingerprint: p.fingerprint, count: p.count,
+        inputs: p.inputs.map((i) => ({ name: i.name, dtype: i.dtype, rowShape: i.rowShape })),
+        labels: p.labels.map((name, i) => ({ name, count: counts[i] })),
+        concepts: p.concepts?.length ?? 0, examples: p.examples?.length ?? 0, warnings: p.warnings,
+      };
+    },
+
+    'scan.start': async (r: Request<'scan.start'>): Promise<{ job: string }> => {
+      const id = crypto.randomUUID();
+      const abort = new AbortController();
+      const state: JobState = { job: id, state: 'running', progress: null, notes: [], error: null, result: null };
+      jobs.set(id, { state, abort });
+      runScan(r, { signal: abort.signal, onProgress: (p) => { state.progress = p; }, onNote: (m) => state.notes.push(m) }, ctx)
+        .then((result) => { state.result = result; state.state = 'done'; })
+        .catch((e) => { state.error = toErrorInfo(e); state.state = isSkeinError(e) && e.code === 'cancelled' ? 'cancelled' : 'failed'; });
+      return { job: id };
+    },
+
+    'job.get': async (r: Request<'job.get'>): Promise<JobState> => {
+      const j = jobs.get(r.job);
+      if (!j) throw new SkeinError({ code: 'request', where: 'job', message: `No job ${r.job}; it may belong to an earlier session. Start the scan again (it resumes).` });
+      return j.state;
+    },
+
+    'job.cancel': async (r: Request<'job.cancel'>): Promise<JobState> => {
+      const j = jobs.get(r.job);
+      if (!j) throw new SkeinError({ code: 'request', where: 'job', message: `No job ${r.job}.` });
+      j.abort.abort();
+      return j.state;
+    },
+
+    'study.summary': async (r: Request<'study.summary'>): Promise<StudySummary> => withStudy(r.study, (db) => {
+      const run = readRun(db);
+      if (!run) throw new SkeinError({ code: 'study', file: path.resolve(r.study), message: 'This study has no scan yet. Start a scan into it.' });
+      const scored = (db.prepare(`SELECT count(*) FROM score_run`).pluck().get() as number) > 0;
+      return {
+        file: path.resolve(r.study),
+        model: { path: run.modelPath, fingerprint: run.modelFp },
+        probes: { dir: run.probesDir, name: run.probesName, fingerprint: run.probesFp, count: run.probeCount },
+        layers: readLayers(db).map((l) => ({ name: l.name, op: l.op, kind: l.kind, units: l.units, pool: l.pool, dims: l.dims })),
+        labels: labelNames(db), scored, createdAt: run.createdAt, updatedAt: run.updatedAt,
+      };
+    }),
+
+    'study.rank': async (r: Request<'study.rank'>) => withStudy(r.study, (db) => rankRows(db, { layer: r.layer, top: r.top, file: r.study })),
+
+    'unit.detail': async (r: Request<'unit.detail'>) => withStudy(r.study, (db) => unitDetail(db, r.layer, r.unit, r.study)),
+
+    'export.scores': async (r: Request<'export.scores'>): Promise<ExportResult> => {
+      const rows = await api['study.rank']({ study: r.study });
+      const ext = path.extname(r.out).toLowerCase();
+      let text: string;
+      if (ext === '.json') text = JSON.stringify(rows, null, 1) + '\n';
+      else if (ext === '.csv') {
+        text = stringify(rows.map((u) => [u.layer, u.unit, u.conceptCount, u.selectivity, u.flags.join(' '),
+          u.drivers.map((d) => `${d.label}:${d.share.toFixed(4)}`).join(' '), u.drivers.map((d) => d.auroc.toFixed(4)).join(' '),
+          u.drivers.map((d) => d.q.toExponential(3)).join(' '), u.explanation?.formula ?? '', u.explanation?.iou ?? '']),
+        { header: true, columns: ['layer', 'unit', 'concept_count', 'selectivity', 'flags', 'drivers', 'driver_auroc', 'driver_q', 'explanation', 'explanation_iou'] });
+      } else {
+        throw new SkeinError({ code: 'request', file: r.out, message: 'Scores export needs a .csv or .json file name.' });
+      }
+      writeAtomically(r.out, text);
+      return { file: path.resolve(r.out), rows: rows.length, columns: ext === '.csv' ? 10 : 7 };
+    },
+
+    'export.activations': async (r: Request<'export.activations'>): Promise<ExportResult> => withStudy(r.study, (db) => {
+      const run = readRun(db);
+      if (!run) throw new SkeinError({ code: 'study', file: r.study, message: 'This study has no scan yet.' });
+      const layer = findLayer(db, r.layer, r.study);
+      if (path.extname(r.out).toLowerCase() !== '.npy') throw new SkeinError({ code: 'request', file: r.out, message: 'Activations export needs a .npy file name.' });
+      // Probe-major rows for numpy, built chunk by chunk from unit-major storage: memory is units × chunk size.
+      const abs = path.resolve(r.out);
+      const tmp = `${abs}.tmp-${process.pid}`;
+      const fd = fs.openSync(tmp, 'w');
+      try {
+        fs.writeSync(fd, encodeNpyHeader('float32', [run.probeCount, layer.units]));
+        const stmt = db.prepare(`SELECT vals FROM activation WHERE layer_id = ? AND chunk = ? ORDER BY unit`).pluck();
+        for (let c = 0; c * run.chunkSize < run.probeCount; c++) {
+          const length = Math.min(run.chunkSize, run.probeCount - c * run.chunkSize);
+          const cols = (stmt.all(layer.id, c) as Buffer[]).map(blobToFloats);
+          if (cols.length !== layer.units) throw new SkeinError({ code: 'study', file: r.study, where: `layer ${layer.name}`, message: 'The scan of this layer is incomplete. Run the scan again to finish it.' });
+          const block = new Float32Array(length * layer.units);
+          for (let u = 0; u < layer.units; u++) for (let p = 0; p < length; p++) block[p * layer.units + u] = cols[u][p];
+          fs.writeSync(fd, new Uint8Array(block.buffer));
+        }
+        fs.closeSync(fd);
+      } catch (e) {
+        fs.closeSync(fd);
+        fs.rmSync(tmp, { force: true });
+        throw e;
+      }
+      fs.renameSync(tmp, abs);
+      return { file: path.resolve(r.out), rows: run.probeCount, columns: layer.units };
+    }),
+  };
+  return { ...api, ...createScreenApi(ctx) };
+}
+
+export type Api = ReturnType<typeof createApi>;
+
+/** Validates and runs one request: what every transport calls. */
+export async function dispatch(api: Api, ctx: ApiContext, method: string, body: unknown): Promise<unknown> {
+  if (!Object.hasOwn(requests, method)) throw new SkeinError({ code: 'request', where: 'method', message: `Unknown request "${method}".` });
+  const m = method as Method;
+  const req = parseRequest(m, body);
+  checkPaths(req as Record<string, unknown>, ctx.allowedRoots);
+  return (api[m] as (r: unknown) => Promise<unknown>)(req);
+}
+
+/** Writes via a temporary file and a rename, so an interrupted export never leaves a half-written file. */
+export function writeAtomically(file: string, text: string): void {
+  const abs = path.resolve(file);
+  fs.mkdirSync(path.dirname(abs), { recursive: true });
+  const tmp = `${abs}.tmp-${process.pid}`;
+  fs.writeFileSync(tmp, text);
+  fs.renameSync(tmp, abs);
+}

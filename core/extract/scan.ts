@@ -1,0 +1,303 @@
+import fs from 'node:fs';
+import path from 'node:path';
+import type Database from 'better-sqlite3';
+import * as ort from 'onnxruntime-node';
+import { SkeinError } from '../errors.ts';
+import { readModel, exposeTensors, createSession, unitLayout, batchPolicy } from '../model/index.ts';
+import type { ModelInfo, ValueInfo } from '../model/types.ts';
+import { openProbeSet, checkAgainstModel } from '../probes/index.ts';
+import type { ProbeSet } from '../probes/types.ts';
+import { openStudyDb, readRun, readLayers, doneChunks, floatsToBlob, now, type LayerRow } from '../store/study.ts';
+import { poolBatch, type Pool, type LayerKind } from './pool.ts';
+import { Progress, type ProgressReport } from './progress.ts';
+
+export interface ScanRequest {
+  model: string;
+  probes: string;
+  study: string;
+  /** Tensor or node names; default: the model's default selection. */
+  layers?: string[];
+  batch?: number;
+  pool?: Pool;
+  /** Probes per committed chunk (fixed for the life of a study). */
+  chunkSize?: number;
+  threads?: number;
+}
+
+export interface ScanHooks {
+  onProgress?: (p: ProgressReport) => void;
+  /** Non-fatal messages for the user (resume, discarded stale data, flattened layers). */
+  onNote?: (message: string) => void;
+  signal?: AbortSignal;
+  nativeBinding?: string;
+}
+
+export interface ExtractSummary {
+  study: string;
+  probes: number;
+  layers: { name: string; units: number; kind: LayerKind }[];
+  chunksComputed: number;
+  chunksReused: number;
+  resumed: boolean;
+  seconds: number;
+}
+
+export const DEFAULT_CHUNK = 1024;
+export const DEFAULT_BATCH = 64;
+
+/** Runs the model over the probe set and caches every selected layer's activations in the study, resumably. */
+export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<ExtractSummary> {
+  const started = Date.now();
+  const note = hooks.onNote ?? (() => {});
+  const info = readModel(req.model);
+  const probes = openProbeSet(req.probes);
+  checkAgainstModel(probes, info.inputs);
+  for (const w of probes.warnings) note(w);
+  const selected = selectLayers(info, req.layers);
+
+  const db = openStudyDb(req.study, { create: true, nativeBinding: hooks.nativeBinding });
+  try {
+    const chunkSize = bindRun(db, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
+
+    const bytes = exposeTensors(fs.readFileSync(info.path), selected.map((t) => t.name));
+    const session = await createSession(bytes, { intraOpThreads: req.threads });
+    try {
+      const fixed = fixedBatch(info.inputs.filter((i) => probes.inputs.some((s) => s.name === i.name) || i.name in probes.fill));
+      const batch = fixed ?? Math.max(1, Math.floor(req.batch ?? DEFAULT_BATCH));
+      if (fixed !== null && req.batch !== undefined && req.batch !== fixed) {
+        note(`The model's batch dimension is fixed at ${fixed}; using batch ${fixed} instead of ${req.batch}.`);
+      }
+      const feeder = new Feeder(info, probes, fixed);
+      const shapes = await dryRun(session, feeder, selected.map((t) => t.name));
+      const layers = upsertLayers(db, selected, shapes, req.pool ?? 'max', note);
+
+      const chunks = Math.ceil(probes.count / chunkSize);
+      const pending: { chunk: number; layers: LayerRow[] }[] = [];
+      const done = new Map(layers.map((l) => [l.id, doneChunks(db, l.id)]));
+      let reused = 0;
+      for (let c = 0; c < chunks; c++) {
+        const missing = layers.filter((l) => !done.get(l.id)!.has(c));
+        if (missing.length) pending.push({ chunk: c, layers: missing });
+        else reused++;
+      }
+      const resumed = reused > 0 && pending.length > 0;
+      if (resumed) note(`Resuming: ${reused} of ${chunks} chunks are already in the study.`);
+      else if (reused === chunks) note('Every selected layer is already cached in the study; nothing to compute.');
+
+      const probesTodo = pending.reduce((s, p) => s + chunkLength(p.chunk, chunkSize, probes.count), 0);
+      const progress = new Progress('extract', probesTodo, hooks.onProgress);
+      const insertAct = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, argmax) VALUES (?, ?, ?, ?, ?)`);
+      const insertDone = db.prepare(`INSERT OR REPLACE INTO chunk_done (layer_id, chunk) VALUES (?, ?)`);
+      const touch = db.prepare(`UPDATE run SET updated_at = ? WHERE id = 1`);
+
+      for (const { chunk, layers: todo } of pending) {
+        const start = chunk * chunkSize;
+        const length = chunkLength(chunk, chunkSize, probes.count);
+        const buffers = todo.map((l) => ({
+          layer: l,
+          values: new Float32Array(l.units * length),
+          argmax: l.kind === 'conv' || l.kind === 'sequence' ? new Uint32Array(l.units * length) : null,
+        }));
+        for (let off = 0; off < length; off += batch) {
+          throwIfAborted(hooks.signal);
+          const count = Math.min(batch, length - off);
+          const out = await session.run(feeder.feeds(start + off, count), todo.map((l) => l.name));
+          for (const buf of buffers) {
+            const t = out[buf.layer.name];
+            const pooled = poolBatch(t.data as Float32Array, count, buf.layer.kind, buf.layer.dims, buf.layer.pool as Pool);
+            scatter(pooled.values, buf.values, buf.layer.units, count, length, off);
+            if (buf.argmax && pooled.argmax) scatter(pooled.argmax, buf.argmax, buf.layer.units, count, length, off);
+          }
+          progress.advance(count);
+        }
+        throwIfAborted(hooks.signal);
+        // One transaction per chunk: a kill leaves whole chunks only, so resume never mixes partial work in.
+        db.transaction(() => {
+          for (const buf of buffers) {
+            for (let u = 0; u < buf.layer.units; u++) {
+              const vals = buf.values.subarray(u * length, (u + 1) * length);
+              const am = buf.argmax ? buf.argmax.subarray(u * length, (u + 1) * length) : null;
+              insertAct.run(buf.layer.id, u, chunk, floatsToBlob(vals), am ? Buffer.from(am.buffer, am.byteOffset, am.byteLength) : null);
+            }
+            insertDone.run(buf.layer.id, chunk);
+          }
+          touch.run(now());
+        })();
+      }
+      progress.finish();
+      return {
+        study: path.resolve(req.study),
+        probes: probes.count,
+        layers: layers.map((l) => ({ name: l.name, units: l.units, kind: l.kind })),
+        chunksComputed: pending.length,
+        chunksReused: reused,
+        resumed,
+        seconds: (Date.now() - started) / 1000,
+      };
+    } finally {
+      await session.release();
+    }
+  } finally {
+    db.close();
+  }
+}
+
+function chunkLength(chunk: number, size: number, n: number): number {
+  return Math.min(size, n - chunk * size);
+}
+
+/** Copies a unit-major [units × count] block into a unit-major [units × length] chunk buffer at offset. */
+function scatter(src: Float32Array | Uint32Array, dst: Float32Array | Uint32Array, units: number, count: number, length: number, offset: number): void {
+  for (let u = 0; u < units; u++) dst.set(src.subarray(u * count, (u + 1) * count), u * length + offset);
+}
+
+function throwIfAborted(signal?: AbortSignal): void {
+  if (signal?.aborted) {
+    throw new SkeinError({ code: 'cancelled', message: 'Scan cancelled. Completed chunks are saved; run the scan again to resume.' });
+  }
+}
+
+export function selectLayers(info: ModelInfo, names?: string[]) {
+  if (!names || names.length === 0) {
+    const defaults = info.tensors.filter((t) => t.isDefault && t.capturable);
+    if (defaults.length === 0) {
+      throw new SkeinError({ code: 'model', file: info.path, message: 'No default layers found in this model. Name the tensors to capture with --layers (see skein layers).' });
+    }
+    return defaults;
+  }
+  return names.map((n) => {
+    const t = info.tensors.find((x) => x.name === n) ?? info.tensors.find((x) => x.node === n);
+    if (!t) {
+      throw new SkeinError({ code: 'model', file: info.path, where: `layer ${n}`, message: `No tensor or node named "${n}". Run skein layers to list the capturable tensors.` });
+    }
+    if (!t.capturable) {
+      throw new SkeinError({ code: 'model', file: info.path, where: `layer ${n}`, message: `Tensor "${n}" cannot be captured: ${t.reason ?? 'unsupported'}.` });
+    }
+    return t;
+  });
+}
+
+/** A numeric batch dimension shared by the fed inputs, or null when it is dynamic. */
+function fixedBatch(inputs: ValueInfo[]): number | null {
+  let fixed: number | null = null;
+  for (const i of inputs) {
+    const f = batchPolicy(i).fixed;
+    if (f !== null) fixed = fixed === null ? f : Math.min(fixed, f);
+  }
+  return fixed;
+}
+
+/** Binds the study to this model + probe set; discards stale activations and scores when either changed. */
+function bindRun(db: Database.Database, info: ModelInfo, probes: ProbeSet, chunkSize: number, note: (m: string) => void): number {
+  const run = readRun(db);
+  if (run && run.modelFp === info.fingerprint && run.probesFp === probes.fingerprint) {
+    db.prepare(`UPDATE run SET model_path = ?, probes_dir = ? WHERE id = 1`).run(info.path, probes.dir);
+    return run.chunkSize;
+  }
+  db.transaction(() => {
+    if (run) {
+      const what = [run.modelFp !== info.fingerprint ? 'model' : null, run.probesFp !== probes.fingerprint ? 'probe set' : null].filter(Boolean).join(' and ');
+      note(`The ${what} changed since this study was made: its cached activations and scores were discarded (review annotations are kept).`);
+      for (const t of ['unit_label', 'unit_score', 'score_run', 'relatedness', 'activation', 'chunk_done', 'layer', 'probe_label', 'label', 'concept', 'example', 'run']) {
+        db.prepare(`DELETE FROM ${t}`).run();
+      }
+    }
+    const t = now();
+    db.prepare(`INSERT INTO run (id, model_path, model_fp, model_json, probes_dir, probes_fp, probes_name, probe_count, chunk_size, created_at, updated_at)
+                VALUES (1, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
+      .run(info.path, info.fingerprint, JSON.stringify({ producer: info.producer, opset: info.opsetVersion, inputs: info.inputs, outputs: info.outputs, bytes: info.bytes }),
+        probes.dir, probes.fingerprint, probes.name, probes.count, chunkSize, t, t);
+    const insLabel = db.prepare(`INSERT INTO label (id, name) VALUES (?, ?)`);
+    probes.labels.forEach((name, id) => insLabel.run(id, name));
+    const insPL = db.prepare(`INSERT INTO probe_label (probe, label) VALUES (?, ?)`);
+    for (let p = 0; p < probes.count; p++) {
+      for (let k = probes.labelOffsets[p]; k < probes.labelOffsets[p + 1]; k++) insPL.run(p, probes.labelIds[k]);
+    }
+    const insC = db.prepare(`INSERT OR REPLACE INTO concept (label, grp, parent, description) VALUES (?, ?, ?, ?)`);
+    for (const c of probes.concepts ?? []) insC.run(c.label, c.group, c.parent ?? null, c.description ?? null);
+    const insE = db.prepare(`INSERT OR REPLACE INTO example (probe, ext_id, text, image) VALUES (?, ?, ?, ?)`);
+    for (const e of probes.examples ?? []) insE.run(e.probe, e.id ?? null, e.text ?? null, e.image ?? null);
+    if (probes.relatedness) db.prepare(`INSERT OR REPLACE INTO meta (key, value) VALUES ('relatedness_override', ?)`).run(JSON.stringify(probes.relatedness));
+  })();
+  return chunkSize;
+}
+
+function upsertLayers(db: Database.Database, selected: ModelInfo['tensors'], shapes: Map<string, number[]>, pool: Pool, note: (m: string) => void): LayerRow[] {
+  const existing = new Map(readLayers(db).map((l) => [l.name, l]));
+  db.transaction(() => {
+    selected.forEach((t, i) => {
+      const dims = shapes.get(t.name)!;
+      const layout = unitLayout(dims);
+      if (layout.warning) note(`${t.name}: ${layout.warning}`);
+      const layerPool = layout.kind === 'dense' || layout.kind === 'flat' ? 'none' : pool;
+      const old = existing.get(t.name);
+      if (old && (old.pool !== layerPool || JSON.stringify(old.dims) !== JSON.stringify(dims))) {
+        note(`${t.name}: cached with pool ${old.pool}, now ${layerPool}; its cached activations were discarded.`);
+        db.prepare(`DELETE FROM layer WHERE id = ?`).run(old.id);
+        existing.delete(t.name);
+      }
+      if (!existing.has(t.name)) {
+        db.prepare(`INSERT INTO layer (name, op, node, position, dims_json, kind, units, pool) VALUES (?, ?, ?, ?, ?, ?, ?, ?)`)
+          .run(t.name, t.op, t.node, i, JSON.stringify(dims), layout.kind, layout.units, layerPool);
+      }
+    });
+    // Scores cover the whole study; a layer set change makes them stale.
+    db.prepare(`DELETE FROM score_run`).run();
+  })();
+  const names = new Set(selected.map((t) => t.name));
+  return readLayers(db).filter((l) => names.has(l.name));
+}
+
+/** Runs one batch to learn each exposed tensor's concrete per-probe dims. */
+async function dryRun(session: ort.InferenceSession, feeder: Feeder, names: string[]): Promise<Map<string, number[]>> {
+  const out = await session.run(feeder.feeds(0, 1), names);
+  return new Map(names.map((n) => [n, out[n].dims.slice(1).map(Number)]));
+}
+
+type TypedData = Float32Array | Float64Array | Int32Array | BigInt64Array | Uint8Array;
+
+/** Builds feeds for a range of probes: probe-set inputs, fill values, and padding to a fixed batch. */
+class Feeder {
+  constructor(private info: ModelInfo, private probes: ProbeSet, private fixed: number | null) {}
+
+  feeds(start: number, count: number): Record<string, ort.Tensor> {
+    const rows = this.fixed ?? count;
+    const feeds: Record<string, ort.Tensor> = {};
+    for (const input of this.info.inputs) {
+      const src = this.probes.inputs.find((s) => s.name === input.name);
+      if (src) {
+        const per = src.rowShape.reduce((a, b) => a * b, 1);
+        let data: TypedData = src.readRows(start, count);
+        if (rows > count) data = padRows(data, per, count, rows);
+        feeds[input.name] = toTensor(input, data, [rows, ...src.rowShape]);
+      } else {
+        const value = this.probes.fill[input.name];
+        const dims = (input.dims ?? []).map((d, i) => (i === 0 && input.dims!.length > 1 ? rows : typeof d === 'number' ? d : 1));
+        const size = dims.reduce((a, b) => a * b, 1);
+        feeds[input.name] = toTensor(input, new Float64Array(size).fill(value), dims);
+      }
+    }
+    return feeds;
+  }
+}
+
+function padRows(data: TypedData, per: number, count: number, rows: number): TypedData {
+  const out = new (data.constructor as { new (n: number): TypedData })(per * rows);
+  (out as Float32Array).set(data as Float32Array);
+  for (let r = count; r < rows; r++) (out as Float32Array).copyWithin(r * per, (count - 1) * per, count * per);
+  return out;
+}
+
+/** Converts probe-set values to the element type the model input declares. */
+function toTensor(input: ValueInfo, data: TypedData, dims: number[]): ort.Tensor {
+  switch (input.elemType) {
+    case 'float32': return new ort.Tensor('float32', data instanceof Float32Array ? data : Float32Array.from(data as ArrayLike<number>, Number), dims);
+    case 'float64': return new ort.Tensor('float64', data instanceof Float64Array ? data : Float64Array.from(data as ArrayLike<number>, Number), dims);
+    case 'int64': return new ort.Tensor('int64', data instanceof BigInt64Array ? data : BigInt64Array.from(data as ArrayLike<number>, (v) => BigInt(Math.round(Number(v)))), dims);
+    case 'int32': return new ort.Tensor('int32', data instanceof Int32Array ? data : Int32Array.from(data as ArrayLike<number>, Number), dims);
+    case 'uint8': return new ort.Tensor('uint8', data instanceof Uint8Array ? data : Uint8Array.from(data as ArrayLike<number>, Number), dims);
+    case 'bool': return new ort.Tensor('bool', data instanceof Uint8Array ? data : Uint8Array.from(data as ArrayLike<number>, (v) => (Number(v) ? 1 : 0)), dims);
+    default:
+      throw new SkeinError({ code: 'model', where: `input ${input.name}`, message: `Model input "${input.name}" has element type ${input.elemType}, which Skein cannot feed. Export the model with a float32, int64, int32, uint8 or bool input.` });
+  }
+}

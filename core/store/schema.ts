@@ -1,0 +1,97 @@
+/**
+ * The study file: one SQLite database (WAL) per study.
+ *
+ * Activation layout (designed for per-unit reads at 200k probes × 4096 units):
+ *   one row per (layer, unit, chunk) holding that unit's float32 values for the chunk's probes, in probe order.
+ *   A chunk is `run.chunk_size` consecutive probes (default 1024) and is the unit of commit: every layer's rows for
+ *   a chunk are written in one transaction together with its `chunk_done` row, so a killed scan leaves whole chunks
+ *   only. Reading one unit is N / chunk_size primary-key lookups (196 rows of 4 KiB at 200k probes), reading a
+ *   layer for scoring is one unit at a time, so memory is bounded by one unit's N floats, never N × units.
+ *   Conv and sequence units also keep, per probe, where the pooled value came from (argmax, uint32 blob).
+ *
+ * Annotations (core/review) are keyed by model fingerprint + probe-set fingerprint + layer name + unit, and are
+ * never deleted when activations are discarded for a changed model or probe set.
+ *
+ * Migrations: PRAGMA user_version holds the schema version; `migrations[i]` takes version i to i+1.
+ */
+export const migrations: string[] = [
+  // 0 → 1: the run, its layers, activations, labels and scores.
+  `
+  CREATE TABLE meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+
+  CREATE TABLE run (
+    id INTEGER PRIMARY KEY CHECK (id = 1),
+    model_path TEXT NOT NULL, model_fp TEXT NOT NULL, model_json TEXT NOT NULL,
+    probes_dir TEXT NOT NULL, probes_fp TEXT NOT NULL, probes_name TEXT NOT NULL,
+    probe_count INTEGER NOT NULL, chunk_size INTEGER NOT NULL,
+    created_at TEXT NOT NULL, updated_at TEXT NOT NULL
+  );
+
+  CREATE TABLE layer (
+    id INTEGER PRIMARY KEY,
+    name TEXT NOT NULL UNIQUE,          -- tensor name in the graph
+    op TEXT NOT NULL, node TEXT NOT NULL,
+    position INTEGER NOT NULL,          -- order in the graph
+    dims_json TEXT NOT NULL,            -- concrete per-probe dims after the batch axis
+    kind TEXT NOT NULL,                 -- dense | conv | sequence | flat
+    units INTEGER NOT NULL,
+    pool TEXT NOT NULL                  -- max | mean | last | none
+  );
+
+  CREATE TABLE chunk_done (
+    layer_id INTEGER NOT NULL REFERENCES layer(id) ON DELETE CASCADE,
+    chunk INTEGER NOT NULL,
+    PRIMARY KEY (layer_id, chunk)
+  ) WITHOUT ROWID;
+
+  CREATE TABLE activation (
+    layer_id INTEGER NOT NULL REFERENCES layer(id) ON DELETE CASCADE,
+    unit INTEGER NOT NULL,
+    chunk INTEGER NOT NULL,
+    vals BLOB NOT NULL,                 -- float32 little-endian, one per probe of the chunk
+    argmax BLOB,                        -- uint32 per probe: flat spatial/time index of the pooled value
+    PRIMARY KEY (layer_id, unit, chunk)
+  );
+
+  CREATE TABLE label (id INTEGER PRIMARY KEY, name TEXT NOT NULL UNIQUE);
+  CREATE TABLE probe_label (
+    probe INTEGER NOT NULL, label INTEGER NOT NULL REFERENCES label(id),
+    PRIMARY KEY (probe, label)
+  ) WITHOUT ROWID;
+  CREATE TABLE concept (label TEXT PRIMARY KEY, grp TEXT NOT NULL, parent TEXT, description TEXT);
+  CREATE TABLE example (probe INTEGER PRIMARY KEY, ext_id TEXT, text TEXT, image TEXT);
+
+  CREATE TABLE score_run (
+    id INTEGER PRIMARY KEY CHECK (id = 1),
+    key TEXT NOT NULL,                  -- hash of fingerprints, layers and options: scores are reused while it matches
+    options_json TEXT NOT NULL, scored_at TEXT NOT NULL
+  );
+  CREATE TABLE relatedness (
+    a INTEGER NOT NULL, b INTEGER NOT NULL, similarity REAL NOT NULL, source TEXT NOT NULL,
+    PRIMARY KEY (a, b)
+  ) WITHOUT ROWID;
+  CREATE TABLE unit_score (
+    layer_id INTEGER NOT NULL REFERENCES layer(id) ON DELETE CASCADE,
+    unit INTEGER NOT NULL,
+    rank INTEGER NOT NULL,              -- 0 = most polysemantic across the study
+    concept_count REAL NOT NULL, selectivity REAL NOT NULL, evidence REAL NOT NULL,
+    flags TEXT NOT NULL,                -- JSON array
+    drivers TEXT NOT NULL,              -- JSON [{label, auroc, q, share}] with label ids
+    explanation TEXT,                   -- JSON {labels, iou} or NULL
+    active_fraction REAL NOT NULL, mean REAL NOT NULL, max REAL NOT NULL, top_threshold REAL NOT NULL,
+    top_probes BLOB NOT NULL, top_values BLOB NOT NULL,
+    PRIMARY KEY (layer_id, unit)
+  ) WITHOUT ROWID;
+  CREATE INDEX unit_score_rank ON unit_score(rank);
+  CREATE TABLE unit_label (
+    layer_id INTEGER NOT NULL REFERENCES layer(id) ON DELETE CASCADE,
+    unit INTEGER NOT NULL, label INTEGER NOT NULL,
+    n1 INTEGER NOT NULL, mean_with REAL NOT NULL, mean_without REAL NOT NULL, auroc REAL NOT NULL,
+    top_hits INTEGER NOT NULL, p REAL NOT NULL, q REAL NOT NULL,
+    PRIMARY KEY (layer_id, unit, label)
+  ) WITHOUT ROWID;
+  CREATE INDEX unit_label_by_label ON unit_label(label, auroc);
+  `,
+];
+
+export const SCHEMA_VERSION = migrations.length;
