@@ -5,6 +5,7 @@
  */
 import { z } from 'zod';
 import { screenRequests } from './screens.ts';
+import { fileRequests } from './files.ts';
 
 const path = z.string().min(1).max(4096);
 const layerName = z.string().min(1).max(1024);
@@ -33,6 +34,7 @@ export const requests = {
   'export.scores': z.strictObject({ study: path, out: path }),
   'export.activations': z.strictObject({ study: path, out: path, layer: layerName }),
   ...screenRequests,
+  ...fileRequests,
 } as const;
 
 export type Method = keyof typeof requests;

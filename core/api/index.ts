@@ -10,6 +10,7 @@ import { scoreStudy } from '../score/job.ts';
 import { openStudyDb, readRun, readLayers, findLayer, blobToFloats } from '../store/study.ts';
 import { rankRows, unitDetail, labelNames } from '../store/queries.ts';
 import { createScreenApi } from './screens.ts';
+import { createFileApi } from './files.ts';
 import { requests, type Method, type Request, type JobState, type ScanResult, type StudySummary, type ProbeSummary, type ExportResult } from './contract.ts';
 
 export { requests };
@@ -208,7 +209,7 @@ export function createApi(ctx: ApiContext = {}) {
       return { file: path.resolve(r.out), rows: run.probeCount, columns: layer.units };
     }),
   };
-  return { ...api, ...createScreenApi(ctx) };
+  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx) };
 }
 
 export type Api = ReturnType<typeof createApi>;
