@@ -25,6 +25,8 @@ export interface ApiContext {
    * data folder and folders named on the command line). Unset: any path (CLI, Electron with native dialogs).
    */
   allowedRoots?: string[];
+  /** The user's data folder (demo study, recent files): `$SKEIN_HOME` or `~/.skein` when unset. */
+  dataDir?: string;
 }
 
 /** Request fields that hold file or folder paths, checked against ApiContext.allowedRoots. */
