@@ -37,11 +37,17 @@ export interface ModelInfo {
   path: string;
   /** SHA-256 (hex) of the file bytes (plus external-data files, in order, when present). */
   fingerprint: string;
+  /** Bytes hashed into the fingerprint: the .onnx file plus its external-data files. */
   bytes: number;
   opsetVersion: number | null;
   producer: string;
   inputs: ValueInfo[];   // graph inputs that are not initializers
   outputs: ValueInfo[];
-  /** Every top-level node output of floating type, capturable or not, in graph order. */
+  /**
+   * Every node output of floating type, capturable or not, in graph order; tensors inside an If/Loop/Scan
+   * subgraph come right before the node that holds them and are never capturable.
+   */
   tensors: CapturableTensor[];
+  /** Absolute paths of external-data files the model's initializers live in (empty for self-contained files). */
+  externalData?: string[];
 }
