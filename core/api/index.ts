@@ -4,7 +4,7 @@ import crypto from 'node:crypto';
 import { stringify } from 'csv-stringify/sync';
 import { SkeinError, isSkeinError, type ErrorInfo } from '../errors.ts';
 import { readModel } from '../model/index.ts';
-import { openProbeSet, encodeNpyHeader } from '../probes/index.ts';
+import { openProbeSet, writeNpyFloat32 } from '../probes/index.ts';
 import { extract, type ScanHooks } from '../extract/scan.ts';
 import { scoreStudy } from '../score/job.ts';
 import { openStudyDb, readRun, readLayers, findLayer, blobToFloats } from '../store/study.ts';
@@ -187,27 +187,18 @@ export function createApi(ctx: ApiContext = {}) {
       const layer = findLayer(db, r.layer, r.study);
       if (path.extname(r.out).toLowerCase() !== '.npy') throw new SkeinError({ code: 'request', file: r.out, message: 'Activations export needs a .npy file name.' });
       // Probe-major rows for numpy, built chunk by chunk from unit-major storage: memory is units × chunk size.
-      const abs = path.resolve(r.out);
-      const tmp = `${abs}.tmp-${process.pid}`;
-      const fd = fs.openSync(tmp, 'w');
-      try {
-        fs.writeSync(fd, encodeNpyHeader('float32', [run.probeCount, layer.units]));
-        const stmt = db.prepare(`SELECT vals FROM activation WHERE layer_id = ? AND chunk = ? ORDER BY unit`).pluck();
-        for (let c = 0; c * run.chunkSize < run.probeCount; c++) {
-          const length = Math.min(run.chunkSize, run.probeCount - c * run.chunkSize);
+      const stmt = db.prepare(`SELECT vals FROM activation WHERE layer_id = ? AND chunk = ? ORDER BY unit`).pluck();
+      function* blocks(): Generator<Float32Array> {
+        for (let c = 0; c * run!.chunkSize < run!.probeCount; c++) {
+          const length = Math.min(run!.chunkSize, run!.probeCount - c * run!.chunkSize);
           const cols = (stmt.all(layer.id, c) as Buffer[]).map(blobToFloats);
           if (cols.length !== layer.units) throw new SkeinError({ code: 'study', file: r.study, where: `layer ${layer.name}`, message: 'The scan of this layer is incomplete. Run the scan again to finish it.' });
           const block = new Float32Array(length * layer.units);
           for (let u = 0; u < layer.units; u++) for (let p = 0; p < length; p++) block[p * layer.units + u] = cols[u][p];
-          fs.writeSync(fd, new Uint8Array(block.buffer));
+          yield block;
         }
-        fs.closeSync(fd);
-      } catch (e) {
-        fs.closeSync(fd);
-        fs.rmSync(tmp, { force: true });
-        throw e;
       }
-      fs.renameSync(tmp, abs);
+      writeNpyFloat32(path.resolve(r.out), [run.probeCount, layer.units], blocks());
       return { file: path.resolve(r.out), rows: run.probeCount, columns: layer.units };
     }),
   };

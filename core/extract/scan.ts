@@ -241,8 +241,6 @@ function upsertLayers(db: Database.Database, selected: ModelInfo['tensors'], sha
           .run(t.name, t.op, t.node, i, JSON.stringify(dims), layout.kind, layout.units, layerPool);
       }
     });
-    // Scores cover the whole study; a layer set change makes them stale.
-    db.prepare(`DELETE FROM score_run`).run();
   })();
   const names = new Set(selected.map((t) => t.name));
   return readLayers(db).filter((l) => names.has(l.name));
