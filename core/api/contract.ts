@@ -6,6 +6,7 @@
 import { z } from 'zod';
 import { screenRequests } from './screens.ts';
 import { fileRequests } from './files.ts';
+import { reviewRequests } from './review.ts';
 
 const path = z.string().min(1).max(4096);
 const layerName = z.string().min(1).max(1024);
@@ -35,6 +36,7 @@ export const requests = {
   'export.activations': z.strictObject({ study: path, out: path, layer: layerName }),
   ...screenRequests,
   ...fileRequests,
+  ...reviewRequests,
 } as const;
 
 export type Method = keyof typeof requests;

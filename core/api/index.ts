@@ -11,6 +11,7 @@ import { openStudyDb, readRun, readLayers, findLayer, blobToFloats } from '../st
 import { rankRows, unitDetail, labelNames } from '../store/queries.ts';
 import { createScreenApi } from './screens.ts';
 import { createFileApi } from './files.ts';
+import { createReviewApi } from './review.ts';
 import { requests, type Method, type Request, type JobState, type ScanResult, type StudySummary, type ProbeSummary, type ExportResult } from './contract.ts';
 
 export { requests };
@@ -202,7 +203,7 @@ export function createApi(ctx: ApiContext = {}) {
       return { file: path.resolve(r.out), rows: run.probeCount, columns: layer.units };
     }),
   };
-  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx) };
+  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx) };
 }
 
 export type Api = ReturnType<typeof createApi>;
