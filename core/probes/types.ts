@@ -1,4 +1,5 @@
 /** What core/probes tells the rest of Skein about a probe-set folder. */
+import type { ValueInfo } from '../model/types.ts';
 
 export type NpyDType = 'float32' | 'float16' | 'float64' | 'int64' | 'int32' | 'uint8' | 'bool';
 
@@ -12,6 +13,8 @@ export interface InputSource {
   dtype: NpyDType;
   /** Shape of one probe (the full shape without the first axis). */
   rowShape: number[];
+  /** Where the values come from: an .npy named in manifest "inputs", or images built per manifest "preprocess". */
+  origin?: 'npy' | 'images';
   /**
    * Rows [start, start+count) as one C-order typed array of count*prod(rowShape) values.
    * float16 is widened to Float32Array; bool becomes Uint8Array; int64 is BigInt64Array.
@@ -52,3 +55,6 @@ export interface ProbeSet {
   /** Non-fatal notes for the user (e.g. "3 labels occur on fewer than 5 probes"). */
   warnings: string[];
 }
+
+/** A model input as checkAgainstModel needs it (core/model's ValueInfo fits). */
+export type ModelInputSpec = Pick<ValueInfo, 'name' | 'elemType' | 'dims'>;
