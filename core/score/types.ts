@@ -67,3 +67,37 @@ export interface UnitScore {
   topValues: Float32Array;
   stats: LabelStat[];      // one per label, by label id
 }
+
+/** Where a relatedness cell came from (first match wins, in this order after the diagonal). */
+export type RelatednessSource = Relatedness['source'][number];
+
+/** Best OR-formula of up to 3 labels (Mu & Andreas 2020): label ids ascending and its IoU with the top set. */
+export interface Explanation { labels: number[]; iou: number }
+
+/**
+ * Pass-1 result for one unit: everything that does not need the layer's other units.
+ * Memory is O(L + topExamples): the N activations are not kept. Arrays are indexed by label id.
+ * The compositional explanation needs only this unit's top set, so it is computed here, not in finishLayer.
+ */
+export interface UnitPartial {
+  unit: number;
+  probeCount: number;      // N
+  min: number;
+  max: number;
+  mean: number;
+  activeFraction: number;  // fraction of probes with a_i > min_a + tolerance (see core/score/unit.ts)
+  topThreshold: number;    // activation of the T-th highest probe, T = top-set size before dropping floor probes
+  topCount: number;        // probes in the top set (the T highest, without probes at the unit's floor)
+  selectivity: number;
+  /** Probes per label; shared, read-only (the same array for every unit of a LabelMatrix). */
+  labelCount: Int32Array;
+  meanWith: Float64Array;  // NaN when no probe carries the label
+  meanWithout: Float64Array; // NaN when every probe carries the label
+  auroc: Float64Array;
+  topHits: Int32Array;
+  p: Float64Array;         // hypergeometric upper tail; 1 for labels that cannot be tested (n1 = 0 or n0 = 0)
+  topMass: Float64Array;   // sum over top-set probes with the label of (a_i - min_a)
+  topProbes: Int32Array;
+  topValues: Float32Array;
+  explanation: Explanation | null;
+}
