@@ -15,31 +15,73 @@ function modelError(file: string | undefined, message: string, where?: string): 
   return new SkeinError({ code: 'model', message, file, where });
 }
 
+/** ModelProto's top-level fields and their protobuf wire types (onnx.proto: 0 = varint, 2 = length-delimited). */
+const MODEL_FIELDS: Record<number, number> = { 1: 0, 2: 2, 3: 2, 4: 2, 5: 0, 6: 2, 7: 2, 8: 2, 14: 2, 20: 2, 25: 2 };
+
+/**
+ * Walk the top-level fields without decoding them (protobuf encoding: tag varint = field << 3 | wire type).
+ * 'onnx-prefix': every field is a ModelProto field, ir_version among them, and the last one runs past the
+ * end; 'onnx': all fields well formed; 'foreign': a field no ModelProto has.
+ */
+export function topLevelShape(bytes: Uint8Array): 'onnx' | 'onnx-prefix' | 'foreign' {
+  let pos = 0;
+  let sawIrVersion = false;
+  const varint = (): number | null => {
+    let value = 0;
+    for (let shift = 0; shift < 70; shift += 7) {
+      if (pos >= bytes.length) return null;
+      const b = bytes[pos++];
+      value += (b & 0x7f) * 2 ** shift;
+      if ((b & 0x80) === 0) return value;
+    }
+    return null;
+  };
+  const ended = () => (sawIrVersion ? 'onnx-prefix' : 'foreign');
+  while (pos < bytes.length) {
+    const tag = varint();
+    if (tag === null) return ended();
+    const field = Math.floor(tag / 8);
+    const wire = tag % 8;
+    if (MODEL_FIELDS[field] !== wire) return 'foreign';
+    if (field === 1) sawIrVersion = true;
+    const value = varint();
+    if (value === null) return ended();
+    if (wire === 2) {
+      if (pos + value > bytes.length) return ended();
+      pos += value;
+    }
+  }
+  return 'onnx';
+}
+
 /**
  * Decode model bytes into a ModelProto, turning every way a file can be wrong into a SkeinError.
  * `file` is only used in messages.
  */
 export function decodeModel(bytes: Uint8Array, file?: string): OnnxProto.ModelProto {
+  const notOnnx = () => modelError(file, 'This file is not an ONNX model. Choose the .onnx file exported from your training framework.');
+  const truncated = () => modelError(file, 'The model file ends early: it looks truncated (an interrupted copy or download). Export or copy it again.', `byte ${bytes.length}`);
+  const shape = topLevelShape(bytes);
+  if (shape === 'foreign') throw notOnnx();
+  if (shape === 'onnx-prefix') throw truncated();
   let model: OnnxProto.ModelProto;
   try {
     model = onnx.ModelProto.decode(bytes);
   } catch (e) {
     const detail = e instanceof Error ? e.message : String(e);
-    // protobufjs reports a read past the end as "index out of range: a + b > length".
-    if (/index out of range/i.test(detail)) {
-      throw modelError(file, 'The model file ends early: it looks truncated (an interrupted copy or download). Export or copy it again.', `byte ${bytes.length}`);
-    }
-    throw modelError(file, `This file is not an ONNX model (it does not decode as ONNX protobuf: ${detail}). Choose the .onnx file exported from your training framework.`);
+    throw modelError(file, `The ONNX file is damaged inside (${detail}). Export or copy the model again.`);
   }
   const irVersion = toNum(model.irVersion);
-  if (irVersion <= 0 || irVersion > MAX_PLAUSIBLE_IR_VERSION) {
-    throw modelError(file, 'This file is not an ONNX model (it has no valid ir_version). Choose the .onnx file exported from your training framework.', 'ir_version');
-  }
+  if (irVersion <= 0 || irVersion > MAX_PLAUSIBLE_IR_VERSION) throw notOnnx();
   if (!model.graph) {
     throw modelError(file, 'The ONNX file holds no graph: it may be truncated or hold only metadata. Export the model again.', 'graph');
   }
   if ((model.graph.node ?? []).length === 0) {
     throw modelError(file, 'The ONNX graph has no nodes, so there are no hidden tensors to study. Check that you exported the full model.', 'graph.node');
+  }
+  const blank = (model.graph.node ?? []).findIndex((n) => !n.opType);
+  if (blank >= 0) {
+    throw modelError(file, `The ONNX file is damaged inside: node ${blank + 1} of the graph has no operator type. Export or copy the model again.`, `graph.node[${blank}]`);
   }
   return model;
 }
