@@ -167,7 +167,7 @@ export interface AnalyzedNode {
   node: OnnxProto.INodeProto;
   index: number;
   scope: Scope;
-  /** Path of control-flow nodes above this one; empty at the top level. */
+  /** How many subgraphs deep the node sits; 0 at the top level. */
   depth: number;
 }
 

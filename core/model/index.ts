@@ -3,4 +3,4 @@ export type { CapturableTensor, Dim, ElemType, ModelInfo, ValueInfo } from './ty
 export { readModel, decodeModel } from './read.ts';
 export { exposeTensors, createSession, dryRunShapes, type SessionOptions } from './session.ts';
 export { unitLayout, batchPolicy, type UnitLayout } from './layout.ts';
-export { SUBGRAPH_REASON, BFLOAT16_REASON, ACTIVATION_OPS } from './tensors.ts';
+export { listTensors, SUBGRAPH_REASON, BFLOAT16_REASON, ACTIVATION_OPS } from './tensors.ts';

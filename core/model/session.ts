@@ -62,6 +62,7 @@ export function exposeTensors(modelBytes: Uint8Array, names: string[], opts: { m
   const topLevel = new Set((graph.node ?? []).flatMap((n) => n.output ?? []));
   const nested = namesInSubgraphs(graph);
   const outputs = new Set((graph.output ?? []).map((v) => v.name ?? ''));
+  graph.output = [...(graph.output ?? [])];
 
   for (const name of new Set(names)) {
     if (outputs.has(name)) continue;
@@ -80,7 +81,7 @@ export function exposeTensors(modelBytes: Uint8Array, names: string[], opts: { m
     if (!code) {
       throw new SkeinError({ code: 'model', file, where, message: `Skein cannot tell the element type of tensor "${name}", so it cannot capture it. Choose another tensor, or export the model with shape information (value_info).` });
     }
-    graph.output = [...(graph.output ?? []), { name, type: { tensorType: { elemType: code } } }];
+    graph.output.push({ name, type: { tensorType: { elemType: code } } });
     outputs.add(name);
   }
   if (file) inlineExternalData(model, file);
@@ -151,7 +152,7 @@ export async function createSession(modelBytes: Uint8Array, opts: SessionOptions
     }
     throw new SkeinError({
       code: 'model', file,
-      message: `onnxruntime could not load the model: ${detail}. Check that it was exported for ONNX opset 7 or newer, or re-export it.`,
+      message: `onnxruntime could not load the model: ${detail}. Check that the model opens in onnxruntime on CPU, or re-export it.`,
     });
   }
 }

@@ -126,8 +126,8 @@ describe('readModel', () => {
   });
 
   it('a model damaged inside its graph', () => {
-    // Well-formed top level (ir_version = 8, then a graph field), but inside the graph a tag with wire
-    // type 7 on field 9 (reserved in GraphProto); protobuf defines no wire type 7 (tag = field << 3 | wire type).
+    // Well-formed top level (ir_version = 8, then a graph field); inside the graph, tag 0x4f is field 9
+    // (reserved in GraphProto) with wire type 7, which protobuf does not define (tag = field << 3 | wire type).
     const bytes = new Uint8Array([0x08, 0x08, 0x3a, 0x02, 0x4f, 0x00]);
     const e = caught(() => readModel(writeModel(bytes, 'damaged.onnx')));
     expect(e.message).toMatch(/damaged/);

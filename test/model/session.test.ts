@@ -123,3 +123,29 @@ describe('dryRunShapes', () => {
     await session.release();
   });
 });
+
+describe('float16 tensors', () => {
+  it('are listed as capturable and come back from onnxruntime (as IEEE half-precision bits)', async () => {
+    const spec: GraphSpec = {
+      name: 'half',
+      inputs: [{ name: 'x', elemType: 'float32', dims: [1, 4] }],
+      outputs: [{ name: 'y', elemType: 'float32', dims: [1, 4] }],
+      initializers: [],
+      nodes: [
+        { op: 'Cast', inputs: ['x'], outputs: ['x16'], attributes: { to: { i: 10 } } }, // 10 = FLOAT16 (onnx.proto DataType)
+        { op: 'Relu', inputs: ['x16'], outputs: ['r16'] },
+        { op: 'Cast', inputs: ['r16'], outputs: ['y'], attributes: { to: { i: 1 } } },
+      ],
+    };
+    const { info, results, session } = await runExposed(spec, { x: new ort.Tensor('float32', new Float32Array([-2, 0.5, 1, 3]), [1, 4]) });
+    expect(info.tensors.map((t) => [t.name, t.elemType, t.capturable, t.isDefault])).toEqual([
+      ['x16', 'float16', true, false],
+      ['r16', 'float16', true, true],
+      ['y', 'float32', true, false],
+    ]);
+    expect(results.r16.type).toBe('float16');
+    // IEEE 754 binary16: 0 → 0x0000, 0.5 → 0x3800, 1 → 0x3C00, 3 → 0x4200.
+    expect(Array.from(results.r16.data as Uint16Array)).toEqual([0x0000, 0x3800, 0x3c00, 0x4200]);
+    await session.release();
+  });
+});
