@@ -13,6 +13,9 @@ import fs from 'node:fs';
 import path from 'node:path';
 import crypto from 'node:crypto';
 import { createApi, dispatch, toErrorInfo, type ApiContext } from '../../core/api/index.ts';
+import { SECURITY_HEADERS, MISSING_BUILD_PAGE, contentTypeOf, resolveStaticFile } from './static.ts';
+
+export { CONTENT_SECURITY_POLICY } from './static.ts';
 
 export interface ServerOptions {
   /** 0 or unset: a free port chosen by the system. */
@@ -42,33 +45,6 @@ export interface RunningServer {
 export const TOKEN_HEADER = 'x-skein-token';
 export const TOKEN_COOKIE = 'skein_token';
 const DEFAULT_MAX_BODY = 1 << 20;
-
-/** Shared with the Electron window (app/main), which sets the same policy on its file:// page. */
-export const CONTENT_SECURITY_POLICY = [
-  "default-src 'self'", "script-src 'self'",
-  "style-src 'self' 'unsafe-inline'", // plotly writes inline styles
-  "img-src 'self' data: blob:", "connect-src 'self'", "object-src 'none'", "frame-ancestors 'none'", "base-uri 'none'",
-].join('; ');
-
-const SECURITY_HEADERS: Record<string, string> = {
-  'Content-Security-Policy': CONTENT_SECURITY_POLICY,
-  'X-Content-Type-Options': 'nosniff',
-  'Referrer-Policy': 'no-referrer', // the page URL carries the token
-  'Cross-Origin-Opener-Policy': 'same-origin',
-  'Cross-Origin-Resource-Policy': 'same-origin',
-  'X-Frame-Options': 'DENY',
-};
-
-const CONTENT_TYPES: Record<string, string> = {
-  '.html': 'text/html; charset=utf-8', '.js': 'text/javascript; charset=utf-8', '.mjs': 'text/javascript; charset=utf-8',
-  '.css': 'text/css; charset=utf-8', '.json': 'application/json; charset=utf-8', '.map': 'application/json; charset=utf-8',
-  '.svg': 'image/svg+xml', '.png': 'image/png', '.jpg': 'image/jpeg', '.jpeg': 'image/jpeg', '.gif': 'image/gif',
-  '.webp': 'image/webp', '.ico': 'image/x-icon', '.woff': 'font/woff', '.woff2': 'font/woff2', '.ttf': 'font/ttf',
-  '.wasm': 'application/wasm', '.txt': 'text/plain; charset=utf-8',
-};
-
-const MISSING_BUILD_PAGE = `<!doctype html><meta charset="utf-8"><title>Skein</title>
-<p>The Skein screens have not been built yet. Run <code>npm run build:renderer</code> in the Skein folder, then reload this page.</p>\n`;
 
 /** Constant-time comparison; hashing first makes both sides the same length. */
 function tokenMatches(given: string | undefined, token: string): boolean {
@@ -112,29 +88,6 @@ function readBody(req: http.IncomingMessage, maxBytes: number): Promise<Buffer |
     req.on('error', reject);
     req.on('close', () => { if (!req.complete) resolve('too-large'); });
   });
-}
-
-/** Maps a URL path onto a file inside rendererDir, or null when it would leave it (also through links). */
-function staticFile(rendererDir: string, urlPath: string): string | null {
-  let decoded: string;
-  try {
-    decoded = decodeURIComponent(urlPath);
-  } catch {
-    return null;
-  }
-  if (decoded.includes('\0') || decoded.includes('\\')) return null;
-  const rel = decoded === '/' ? 'index.html' : decoded.replace(/^\/+/, '');
-  const root = path.resolve(rendererDir);
-  const full = path.resolve(root, rel);
-  if (path.relative(root, full).startsWith('..') || path.isAbsolute(path.relative(root, full))) return null;
-  try {
-    const real = fs.realpathSync(full);
-    const realRel = path.relative(fs.realpathSync(root), real);
-    if (realRel.startsWith('..') || path.isAbsolute(realRel)) return null;
-    return fs.statSync(real).isFile() ? real : null;
-  } catch {
-    return null;
-  }
 }
 
 export async function startServer(opts: ServerOptions): Promise<RunningServer> {
@@ -196,11 +149,10 @@ export async function startServer(opts: ServerOptions): Promise<RunningServer> {
     if (url.pathname === '/' && !fs.existsSync(path.join(rendererDir, 'index.html'))) {
       return send(res, 503, MISSING_BUILD_PAGE, 'text/html; charset=utf-8', cookie);
     }
-    const file = staticFile(rendererDir, url.pathname);
+    const file = resolveStaticFile(rendererDir, url.pathname);
     if (!file) return sendText(res, 404, 'Not found.', cookie);
     const content = fs.readFileSync(file);
-    const type = CONTENT_TYPES[path.extname(file).toLowerCase()] ?? 'application/octet-stream';
-    res.writeHead(200, { ...SECURITY_HEADERS, 'Content-Type': type, 'Content-Length': String(content.length), 'Cache-Control': 'no-cache', ...cookie });
+        res.writeHead(200, { ...SECURITY_HEADERS, 'Content-Type': contentTypeOf(file), 'Content-Length': String(content.length), 'Cache-Control': 'no-cache', ...cookie });
     res.end(req.method === 'HEAD' ? undefined : content);
   };
 
