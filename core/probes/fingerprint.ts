@@ -7,11 +7,9 @@ import { createHash, type Hash } from 'node:crypto';
 import fs from 'node:fs';
 import path from 'node:path';
 import { probesError } from './fail.ts';
-import { swapBytesInPlace, type NpyFile } from './npy.ts';
-import os from 'node:os';
+import { HOST_LITTLE_ENDIAN, swapBytesInPlace, type NpyFile } from './npy.ts';
 
 const CHUNK_BYTES = 4 << 20; // a multiple of every item size
-const HOST_LITTLE_ENDIAN = os.endianness() === 'LE';
 
 export class FingerprintBuilder {
   private readonly hash: Hash = createHash('sha256');
@@ -47,8 +45,9 @@ export class FingerprintBuilder {
         if (position === 0) options.onFirstChunk?.(this.chunk.subarray(0, n));
         if (npy && position < dataEnd) {
           const inData = Math.min(n, dataEnd - position);
-          const bad = firstNonFinite(this.chunk.subarray(0, inData), npy);
-          if (bad >= 0) throwNonFinite(npy, (position - dataStart) / npy.itemSize + bad, this.chunk, bad, options.where);
+          const data = this.chunk.subarray(0, inData);
+          const bad = firstNonFinite(data, npy);
+          if (bad >= 0) throw nonFiniteError(npy, (position - dataStart) / npy.itemSize + bad, isNaNAt(data, bad, npy), options.where);
         }
         position += n;
       }
@@ -92,12 +91,16 @@ function firstNonFinite(bytes: Uint8Array, npy: NpyFile): number {
   return -1;
 }
 
-function throwNonFinite(npy: NpyFile, element: number, chunk: Uint8Array, indexInChunk: number, where: string | undefined): never {
+/** Whether the non-finite element at `index` (host byte order by now) is a NaN rather than ±Inf. */
+function isNaNAt(bytes: Uint8Array, index: number, npy: NpyFile): boolean {
+  const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+  if (npy.dtype === 'float16') return (view.getUint16(index * 2, HOST_LITTLE_ENDIAN) & 0x3ff) !== 0;
+  return Number.isNaN(npy.dtype === 'float32' ? view.getFloat32(index * 4, HOST_LITTLE_ENDIAN) : view.getFloat64(index * 8, HOST_LITTLE_ENDIAN));
+}
+
+function nonFiniteError(npy: NpyFile, element: number, isNaN: boolean, where: string | undefined) {
   const probe = Math.floor(element / npy.rowSize);
   const within = element - probe * npy.rowSize;
-  let isNaN: boolean;
-  if (npy.dtype === 'float16') isNaN = (new Uint16Array(chunk.buffer, 0, indexInChunk + 1)[indexInChunk] & 0x3ff) !== 0;
-  else isNaN = Number.isNaN(npy.dtype === 'float32' ? new Float32Array(chunk.buffer, 0, indexInChunk + 1)[indexInChunk] : new Float64Array(chunk.buffer, 0, indexInChunk + 1)[indexInChunk]);
-  throw probesError(npy.path, `probe ${probe}`,
+  return probesError(npy.path, `probe ${probe}`,
     `${path.basename(npy.path)} has ${isNaN ? 'a NaN' : 'an infinite value'} at probe ${probe} (element ${within} of that probe)${where ? ` for ${where}` : ''}; inputs must be finite — fix or drop those probes (e.g. np.nan_to_num) and re-save`);
 }

@@ -41,7 +41,7 @@ export interface NpyFile extends NpyHeader {
 }
 
 const MAGIC = [0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59]; // "\x93NUMPY"
-const HOST_LITTLE_ENDIAN = os.endianness() === 'LE';
+export const HOST_LITTLE_ENDIAN = os.endianness() === 'LE';
 /** numpy itself refuses headers over 10 000 bytes by default; we allow more but not absurd sizes. */
 const MAX_HEADER_BYTES = 1 << 20;
 

@@ -120,3 +120,8 @@ export function hasNumpy(): boolean {
     return false;
   }
 }
+
+/** A readRows result as plain numbers (not for int64, which is BigInt). */
+export function numbers(rows: ArrayLike<number> | BigInt64Array): number[] {
+  return Array.from(rows as ArrayLike<number>);
+}

@@ -3,7 +3,7 @@ import fs from 'node:fs';
 import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { encodeNpyHeader, float16BitsToNumber, openNpy, readNpyHeader, writeNpyFloat32 } from '../../core/probes/index.ts';
-import { expectProbesError, f2bits, f4, f8, hasNumpy, i4, i8, npyBytes, tempDir } from './fixtures.ts';
+import { expectProbesError, f2bits, f4, f8, hasNumpy, i4, i8, npyBytes, tempDir, numbers } from './fixtures.ts';
 
 function npyFile(bytes: Uint8Array, name = 'a.npy'): string {
   const file = path.join(tempDir(), name);
@@ -59,25 +59,25 @@ describe('openNpy / readRows', () => {
     const file = npyFile(npyBytes({ descr: '<f4', shape: [3, 2], data: f4([0.5, 1.5, -2, 3, 4.25, -5]) }));
     const npy = openNpy(file);
     expect(npy).toMatchObject({ count: 3, rowShape: [2], rowSize: 2, fortranOrder: false });
-    expect(Array.from(npy.readRows(0, 3))).toEqual([0.5, 1.5, -2, 3, 4.25, -5]);
-    expect(Array.from(npy.readRows(1, 1))).toEqual([-2, 3]);
+    expect(numbers(npy.readRows(0, 3))).toEqual([0.5, 1.5, -2, 3, 4.25, -5]);
+    expect(numbers(npy.readRows(1, 1))).toEqual([-2, 3]);
     expect(npy.readRows(3, 0).length).toBe(0);
     expect(() => npy.readRows(2, 2)).toThrow(RangeError);
   });
 
   it('byte-swaps big-endian >f4 and >f8 data on read', () => {
-    expect(Array.from(openNpy(npyFile(npyBytes({ major: 2, descr: '>f4', shape: [2], data: f4([1.25, -3.5], true) }))).readRows(0, 2))).toEqual([1.25, -3.5]);
-    expect(Array.from(openNpy(npyFile(npyBytes({ major: 3, descr: '>f8', shape: [2, 1], data: f8([Math.PI, -1e300], true) }))).readRows(0, 2))).toEqual([Math.PI, -1e300]);
+    expect(numbers(openNpy(npyFile(npyBytes({ major: 2, descr: '>f4', shape: [2], data: f4([1.25, -3.5], true) }))).readRows(0, 2))).toEqual([1.25, -3.5]);
+    expect(numbers(openNpy(npyFile(npyBytes({ major: 3, descr: '>f8', shape: [2, 1], data: f8([Math.PI, -1e300], true) }))).readRows(0, 2))).toEqual([Math.PI, -1e300]);
   });
 
   it('returns int64 as BigInt64Array, int32 as Int32Array, |b1 as 0/1 Uint8Array', () => {
     const ints = openNpy(npyFile(npyBytes({ descr: '<i8', shape: [3], data: i8([1n, -2n, 9007199254740993n]) }))).readRows(0, 3);
     expect(ints).toBeInstanceOf(BigInt64Array);
     expect(Array.from(ints as BigInt64Array)).toEqual([1n, -2n, 9007199254740993n]);
-    expect(Array.from(openNpy(npyFile(npyBytes({ descr: '<i4', shape: [2], data: i4([-7, 2147483647]) }))).readRows(0, 2))).toEqual([-7, 2147483647]);
+    expect(numbers(openNpy(npyFile(npyBytes({ descr: '<i4', shape: [2], data: i4([-7, 2147483647]) }))).readRows(0, 2))).toEqual([-7, 2147483647]);
     const bools = openNpy(npyFile(npyBytes({ descr: '|b1', shape: [2, 2], data: Uint8Array.from([1, 0, 0, 1]) }))).readRows(0, 2);
     expect(bools).toBeInstanceOf(Uint8Array);
-    expect(Array.from(bools)).toEqual([1, 0, 0, 1]);
+    expect(numbers(bools)).toEqual([1, 0, 0, 1]);
   });
 
   it('widens <f2 to float32 with IEEE 754 binary16 values', () => {
@@ -89,7 +89,7 @@ describe('openNpy / readRows', () => {
     const expected = [1, -2, 65504, 2 ** -14, 2 ** -24, 0.333251953125, Infinity, -Infinity, -0];
     const rows = openNpy(npyFile(npyBytes({ descr: '<f2', shape: [bits.length], data: f2bits(bits) }))).readRows(0, bits.length);
     expect(rows).toBeInstanceOf(Float32Array);
-    expect(Array.from(rows)).toEqual(expected.map(Math.fround));
+    expect(numbers(rows)).toEqual(expected.map(Math.fround));
     expect(Object.is(rows[8], -0)).toBe(true);
     expect(Number.isNaN(float16BitsToNumber(0x7e00))).toBe(true); // exponent all ones, fraction ≠ 0: NaN
   });
@@ -130,11 +130,11 @@ describe('encodeNpyHeader / writeNpyFloat32', () => {
     writeNpyFloat32(file, [4, 3, 2], values);
     const npy = openNpy(file);
     expect(npy).toMatchObject({ dtype: 'float32', shape: [4, 3, 2], littleEndian: true, dataOffset: 128 });
-    expect(Array.from(npy.readRows(0, 4))).toEqual(Array.from(values));
+    expect(numbers(npy.readRows(0, 4))).toEqual(Array.from(values));
 
     function* rows() { for (let r = 0; r < 4; r++) yield values.subarray(r * 6, r * 6 + 6); }
     writeNpyFloat32(file, [4, 6], rows());
-    expect(Array.from(openNpy(file).readRows(1, 2))).toEqual(Array.from(values.subarray(6, 18)));
+    expect(numbers(openNpy(file).readRows(1, 2))).toEqual(Array.from(values.subarray(6, 18)));
     expect(fs.readdirSync(dir)).toEqual(['acts.npy']);
   });
 
@@ -166,10 +166,10 @@ describe('encodeNpyHeader / writeNpyFloat32', () => {
       "np.save(os.path.join(d, 'long.npy'), np.array([-5, 2**40], dtype='<i8'))",
       "np.save(os.path.join(d, 'mask.npy'), np.array([True, False, True]))",
     ].join('\n'), dir]);
-    expect(Array.from(openNpy(path.join(dir, 'be.npy')).readRows(0, 2))).toEqual([1.5, -2, 3, Math.fround(1e-3)]);
+    expect(numbers(openNpy(path.join(dir, 'be.npy')).readRows(0, 2))).toEqual([1.5, -2, 3, Math.fround(1e-3)]);
     // numpy rounds 0.1 to binary16 0x2E66 = 0.0999755859375 (IEEE 754 round-to-nearest)
-    expect(Array.from(openNpy(path.join(dir, 'half.npy')).readRows(0, 4))).toEqual([1, -2, 65504, 0.0999755859375]);
+    expect(numbers(openNpy(path.join(dir, 'half.npy')).readRows(0, 4))).toEqual([1, -2, 65504, 0.0999755859375]);
     expect(Array.from(openNpy(path.join(dir, 'long.npy')).readRows(0, 2) as BigInt64Array)).toEqual([-5n, 2n ** 40n]);
-    expect(Array.from(openNpy(path.join(dir, 'mask.npy')).readRows(0, 3))).toEqual([1, 0, 1]);
+    expect(numbers(openNpy(path.join(dir, 'mask.npy')).readRows(0, 3))).toEqual([1, 0, 1]);
   });
 });

@@ -3,7 +3,7 @@ import fs from 'node:fs';
 import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { openProbeSet } from '../../core/probes/index.ts';
-import { expectProbesError, f2bits, f4, f8, npyBytes, probeSetDir, tempDir, writeFiles } from './fixtures.ts';
+import { expectProbesError, f2bits, f4, f8, npyBytes, probeSetDir, tempDir, writeFiles, numbers } from './fixtures.ts';
 
 const manifest = (extra: object) => ({ name: 'shapes', inputs: { x: 'x.npy' }, labels: 'labels.csv', ...extra });
 
@@ -18,7 +18,7 @@ describe('openProbeSet: a valid folder', () => {
     expect(Array.from(set.labelIds)).toEqual([1, 1, 2, 2, 0, 1, 2]);
     expect(set.inputs).toHaveLength(1);
     expect(set.inputs[0]).toMatchObject({ name: 'x', file: path.join(dir, 'x.npy'), dtype: 'float32', rowShape: [2], origin: 'npy' });
-    expect(Array.from(set.inputs[0].readRows(4, 2))).toEqual([8, 9, 10, 11]);
+    expect(numbers(set.inputs[0].readRows(4, 2))).toEqual([8, 9, 10, 11]);
     // every label here is on fewer than 5 probes (threshold FEW_PROBES_PER_LABEL)
     expect(set.warnings.join('\n')).toMatch(/3 labels occur on fewer than 5 probes/);
   });
