@@ -5,7 +5,7 @@ import * as ort from 'onnxruntime-node';
 import { SkeinError } from '../errors.ts';
 import { readModel, exposeTensors, createSession, unitLayout, batchPolicy } from '../model/index.ts';
 import type { ModelInfo, ValueInfo } from '../model/types.ts';
-import { openProbeSet, checkAgainstModel } from '../probes/index.ts';
+import { openProbeSet, checkAgainstModel, float16BitsToNumber } from '../probes/index.ts';
 import type { ProbeSet } from '../probes/types.ts';
 import { openStudyDb, readRun, readLayers, doneChunks, floatsToBlob, now, type LayerRow } from '../store/study.ts';
 import { poolBatch, type Pool, type LayerKind } from './pool.ts';
@@ -59,8 +59,8 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
   try {
     const chunkSize = bindRun(db, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
 
-    const bytes = exposeTensors(fs.readFileSync(info.path), selected.map((t) => t.name));
-    const session = await createSession(bytes, { intraOpThreads: req.threads });
+    const bytes = exposeTensors(fs.readFileSync(info.path), selected.map((t) => t.name), { modelPath: info.path });
+    const session = await createSession(bytes, { intraOpThreads: req.threads }, info.path);
     try {
       const fixed = fixedBatch(info.inputs.filter((i) => probes.inputs.some((s) => s.name === i.name) || i.name in probes.fill));
       const batch = fixed ?? Math.max(1, Math.floor(req.batch ?? DEFAULT_BATCH));
@@ -104,7 +104,7 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
           const out = await session.run(feeder.feeds(start + off, count), todo.map((l) => l.name));
           for (const buf of buffers) {
             const t = out[buf.layer.name];
-            const pooled = poolBatch(t.data as Float32Array, count, buf.layer.kind, buf.layer.dims, buf.layer.pool as Pool);
+            const pooled = poolBatch(asFloats(t), count, buf.layer.kind, buf.layer.dims, buf.layer.pool as Pool);
             scatter(pooled.values, buf.values, buf.layer.units, count, length, off);
             if (buf.argmax && pooled.argmax) scatter(pooled.argmax, buf.argmax, buf.layer.units, count, length, off);
           }
@@ -140,6 +140,12 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
   } finally {
     db.close();
   }
+}
+
+/** Exposed float16 tensors come back as raw half-precision bits; everything is stored as float32. */
+function asFloats(t: ort.Tensor): ArrayLike<number> {
+  if (t.type === 'float16') return Float32Array.from(t.data as Uint16Array, float16BitsToNumber);
+  return t.data as Float32Array | Float64Array;
 }
 
 function chunkLength(chunk: number, size: number, n: number): number {
