@@ -159,12 +159,22 @@ function formulaIou(
   return intersectionOverUnion(inter, topSize, size);
 }
 
-function byIouThenLabels(p: Candidate, q: Candidate): number {
-  if (Math.abs(p.iou - q.iou) > IOU_TIE) return q.iou - p.iou;
+/** Candidate order: IoU descending (ties within 1e-12), then label ids lexicographically. */
+function ranksBefore(p: Candidate, q: Candidate): boolean {
+  if (Math.abs(p.iou - q.iou) > IOU_TIE) return p.iou > q.iou;
   for (let i = 0; i < Math.min(p.labels.length, q.labels.length); i++) {
-    if (p.labels[i] !== q.labels[i]) return p.labels[i] - q.labels[i];
+    if (p.labels[i] !== q.labels[i]) return p.labels[i] < q.labels[i];
   }
-  return p.labels.length - q.labels.length;
+  return p.labels.length < q.labels.length;
+}
+
+/** Keeps the best BEAM_WIDTH candidates, best first (insertion into a short sorted list). */
+function offer(beamList: Candidate[], candidate: Candidate): void {
+  if (beamList.length === BEAM_WIDTH && !ranksBefore(candidate, beamList[BEAM_WIDTH - 1])) return;
+  let at = beamList.length;
+  while (at > 0 && ranksBefore(candidate, beamList[at - 1])) at--;
+  beamList.splice(at, 0, candidate);
+  if (beamList.length > BEAM_WIDTH) beamList.pop();
 }
 
 function beam(
@@ -174,24 +184,28 @@ function beam(
   topSize: number,
   scratch: ExplainScratch,
 ): Candidate {
-  let layer: Candidate[] = [];
-  for (const l of hitLabels) layer.push({ labels: [l], iou: formulaIou([l], prepared, topHits, topSize, scratch) });
-  layer.sort(byIouThenLabels);
-  let best: Candidate = layer[0];
+  const labelTotal = prepared.labelTotal;
+  let kept: Candidate[] = [];
+  for (const l of hitLabels) offer(kept, { labels: [l], iou: formulaIou([l], prepared, topHits, topSize, scratch) });
+  let best: Candidate = kept[0];
+  const seen = new Set<number>();
   for (let length = 2; length <= 3; length++) {
-    const seen = new Map<string, Candidate>();
-    for (const formula of layer.slice(0, BEAM_WIDTH)) {
+    const next: Candidate[] = [];
+    seen.clear();
+    for (const formula of kept) {
       for (const l of hitLabels) {
         if (formula.labels.includes(l)) continue;
         const labels = [...formula.labels, l].sort((p, q) => p - q);
-        const key = labels.join(',');
+        let key = 0;
+        for (const id of labels) key = key * labelTotal + id;
         if (seen.has(key)) continue;
-        seen.set(key, { labels, iou: formulaIou(labels, prepared, topHits, topSize, scratch) });
+        seen.add(key);
+        offer(next, { labels, iou: formulaIou(labels, prepared, topHits, topSize, scratch) });
       }
     }
-    layer = [...seen.values()].sort(byIouThenLabels);
-    if (layer.length === 0) break;
-    if (isBetter(layer[0].iou, length, best)) best = layer[0];
+    if (next.length === 0) break;
+    if (isBetter(next[0].iou, length, best)) best = next[0];
+    kept = next;
   }
   return best;
 }

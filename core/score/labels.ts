@@ -7,6 +7,8 @@ import type { LabelMatrix } from './types.ts';
 
 /** Pair counts are held densely (L×L Int32) up to this many labels (4 MB); above it they are computed on demand. */
 const DENSE_PAIR_MAX_LABELS = 1024;
+/** On-demand counts are memoized up to this many entries, then the memo starts over (bounded memory). */
+const MEMO_LIMIT = 1 << 20;
 /** Triple counts are held densely (L³ Int32) while C(L,3) ≤ this, the bound for exhaustive explanation search. */
 export const EXHAUSTIVE_TRIPLE_LIMIT = 5000;
 
@@ -84,6 +86,7 @@ export class PreparedLabels {
     let count = this.pairMemo.get(key);
     if (count === undefined) {
       count = this.countCommon(a, b, -1);
+      if (this.pairMemo.size >= MEMO_LIMIT) this.pairMemo.clear();
       this.pairMemo.set(key, count);
     }
     return count;
@@ -96,6 +99,7 @@ export class PreparedLabels {
     let count = this.tripleMemo.get(key);
     if (count === undefined) {
       count = this.countCommon(a, b, c);
+      if (this.tripleMemo.size >= MEMO_LIMIT) this.tripleMemo.clear();
       this.tripleMemo.set(key, count);
     }
     return count;

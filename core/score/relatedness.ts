@@ -5,7 +5,8 @@
  *  2. concepts.csv, when both labels are listed: same group and related parent → 0.75, same group → 0.5,
  *     different groups → 0 (our constants: a shared parent is closer than a shared group; nothing crosses groups);
  *     "related parent" = both have the same non-empty parent, or one label is the other's parent;
- *  3. WordNet Wu–Palmer (max over noun sense pairs) rescaled by max(0, (wup − 0.5)/0.5), when both are WordNet nouns;
+ *  3. WordNet Wu–Palmer of the labels' most frequent noun senses (see WordNet.labelSimilarity), rescaled by
+ *     max(0, (wup − 0.5)/0.5) so unrelated nouns (wup ≈ 0.3–0.5) get 0, when both are WordNet nouns;
  *  4. co-occurrence on the probe set: max(0, NPMI) (Bouma 2009).
  */
 import { SkeinError } from '../errors.ts';

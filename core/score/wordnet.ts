@@ -155,10 +155,15 @@ export class WordNet {
     return best;
   }
 
-  /** Wu–Palmer of two labels: the maximum over their noun sense pairs (our choice); null when either is not a noun. */
-  labelSimilarity(a: string, b: string): number | null {
-    const sensesA = this.lookup(a);
-    const sensesB = this.lookup(b);
+  /**
+   * Wu–Palmer of two labels: the maximum over pairs of their first `senses` noun senses; null when either is not a
+   * noun. WordNet lists senses by frequency in sense-tagged text, and probe labels are used in their common sense;
+   * the maximum over every sense pair makes everyday polysemous nouns look close (house–fish 0.93 through the zodiac
+   * senses), so the default (our choice) is the most frequent sense of each.
+   */
+  labelSimilarity(a: string, b: string, senses = 1): number | null {
+    const sensesA = this.lookup(a).slice(0, senses);
+    const sensesB = this.lookup(b).slice(0, senses);
     if (sensesA.length === 0 || sensesB.length === 0) return null;
     let best = 0;
     for (const x of sensesA) for (const y of sensesB) best = Math.max(best, this.synsetSimilarity(x, y));

