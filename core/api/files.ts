@@ -8,6 +8,7 @@ import path from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { z } from 'zod';
 import { SkeinError } from '../errors.ts';
+import { openStudyDb } from '../store/study.ts';
 import { isInsideRoots, type ApiContext } from './index.ts';
 
 export const fileRequests = {
@@ -17,6 +18,8 @@ export const fileRequests = {
   'fs.roots': z.strictObject({}),
   /** One folder's entries, folders first; dot files only when asked. */
   'fs.list': z.strictObject({ dir: z.string().min(1).max(4096), hidden: z.boolean().optional() }),
+  /** A consistent copy of a study under a new name (File ▸ Save study as…); the original stays as it is. */
+  'study.saveAs': z.strictObject({ study: z.string().min(1).max(4096), out: z.string().min(1).max(4096) }),
 } satisfies Record<string, z.ZodType>;
 
 export interface FileEntry {
@@ -91,6 +94,13 @@ function describe(dir: string, name: string): FileEntry | null {
   return { name, path: full, kind: 'file', size: st.size, isModel: name.toLowerCase().endsWith('.onnx'), isProbeSet: false, isStudy: isStudyFile(full, st.size) };
 }
 
+/** What a dropped or command-line path opens as, or null when it is none of the three. */
+export function classifyOpenable(file: string): 'model' | 'probes' | 'study' | null {
+  const entry = describe(path.dirname(path.resolve(file)), path.basename(file));
+  if (!entry) return null;
+  return entry.isModel ? 'model' : entry.isProbeSet ? 'probes' : entry.isStudy ? 'study' : null;
+}
+
 export function createFileApi(ctx: ApiContext) {
   const dataDir = ctx.dataDir ?? defaultDataDir();
   const roots = (): string[] => ctx.allowedRoots ?? [...new Set([sampleDataDir(), dataDir, os.homedir()])];
@@ -139,6 +149,29 @@ export function createFileApi(ctx: ApiContext) {
       const parent = path.dirname(dir);
       const parentAllowed = !isRoot && parent !== dir && (!ctx.allowedRoots || isInsideRoots(parent, allowed));
       return { dir, parent: parentAllowed ? parent : null, entries, truncated };
+    },
+
+    'study.saveAs': async (r: z.infer<(typeof fileRequests)['study.saveAs']>): Promise<{ file: string }> => {
+      const from = path.resolve(r.study);
+      const out = path.resolve(r.out);
+      if (path.extname(out).toLowerCase() !== '.study') throw new SkeinError({ code: 'request', file: out, where: 'out', message: 'A study file name ends in .study; choose such a name.' });
+      if (fs.existsSync(out) && fs.existsSync(from) && fs.realpathSync(out) === fs.realpathSync(from)) {
+        throw new SkeinError({ code: 'request', file: out, where: 'out', message: 'This is the study itself; choose another file name to save a copy.' });
+      }
+      if (fs.existsSync(out) && fs.statSync(out).isDirectory()) throw new SkeinError({ code: 'request', file: out, where: 'out', message: 'This is a folder; choose a file name ending in .study.' });
+      const db = openStudyDb(from, { readonly: true, nativeBinding: ctx.nativeBinding });
+      // SQLite's online backup copies a consistent snapshot even while a scan writes; the rename makes it appear whole or not at all.
+      const tmp = `${out}.tmp-${process.pid}`;
+      try {
+        await db.backup(tmp);
+        fs.renameSync(tmp, out);
+      } catch (e) {
+        fs.rmSync(tmp, { force: true });
+        throw new SkeinError({ code: 'io', file: out, message: `The copy could not be written (${(e as Error).message}). Check that the folder exists and is writable.` });
+      } finally {
+        db.close();
+      }
+      return { file: out };
     },
   };
 }
