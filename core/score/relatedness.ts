@@ -23,8 +23,6 @@ export const SAME_GROUP_RELATEDNESS = 0.5;
 export interface RelatednessOptions {
   /** Use WordNet for pairs the override and concepts do not cover (default true). */
   wordnet?: boolean;
-  /** A WordNet other than the installed one (tests). */
-  wordnetSource?: WordNet;
 }
 
 function conceptRelatedness(a: ConceptRow, b: ConceptRow): number {
@@ -106,7 +104,7 @@ export function buildRelatedness(
         continue;
       }
       if (useWordNet) {
-        wordnet ??= opts.wordnetSource ?? installedWordNet();
+        wordnet ??= installedWordNet();
         const wup = wordnet.labelSimilarity(labels[i], labels[j]);
         if (wup !== null) {
           set(i, j, wuPalmerToRelatedness(wup), 'wordnet');
