@@ -1,6 +1,6 @@
 /**
  * Pass 1 of scoring: one unit's activations over the probe set → a compact UnitPartial.
- * O(N log N + N·labelsPerProbe) per unit: one sort of the activations, mid-ranks from tie runs, then per-label
+ * O(N·labelsPerProbe) per unit: one radix sort of the activations, mid-ranks from tie runs, then per-label
  * rank sums (AUROC), sums (means), top-set hits and mass in single passes.
  *
  * Definitions chosen here (documented for the UI and the docs):

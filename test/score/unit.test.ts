@@ -132,6 +132,17 @@ describe('scoreUnitPartial (pass 1)', () => {
     }
   });
 
+  it('rebuilds a scratch made for another probe set instead of reusing its counts', () => {
+    const random = seededRandom(12);
+    const first = randomMatrix(300, 4, random);
+    const second = randomMatrix(500, 6, random);
+    const scratch = createScratch(first);
+    const values = Float32Array.from({ length: 500 }, () => random());
+    expect(scoreUnitPartial(0, values, second, defaultScoreOptions, scratch)).toEqual(
+      scoreUnitPartial(0, values, second, defaultScoreOptions),
+    );
+  });
+
   it('reports bad input as SkeinErrors naming the field', () => {
     const matrix = labelMatrixOf(['a', 'b'], [['a'], ['b'], ['a', 'b']]);
     const nan = thrown(() => scoreUnitPartial(3, Float32Array.from([1, NaN, 0]), matrix, defaultScoreOptions));
