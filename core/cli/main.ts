@@ -49,7 +49,7 @@ function intOption(v: unknown, name: string): number | undefined {
   return n;
 }
 
-const fmt = (x: number, d = 3) => (Number.isFinite(x) ? x.toFixed(d) : String(x));
+const fmt = (x: number | null, d = 3) => (x === null ? "—" : Number.isFinite(x) ? x.toFixed(d) : String(x));
 
 function progressPrinter(): (p: ProgressReport) => void {
   const tty = process.stderr.isTTY;

@@ -3,7 +3,7 @@ import type Database from 'better-sqlite3';
 import { SkeinError } from '../errors.ts';
 import { readRun, readLayers, readUnit, doneChunks, floatsToBlob, now, type LayerRow, type RunRow } from '../store/study.ts';
 import { Progress, type ProgressReport } from '../extract/progress.ts';
-import { scoreUnitPartial, finishLayer, rankUnits, buildRelatedness, defaultScoreOptions } from './index.ts';
+import { scoreUnitPartial, finishLayer, rankUnits, buildRelatedness, defaultScoreOptions, createScratch } from './index.ts';
 import type { LabelMatrix, Relatedness, ScoreOptions, UnitScore } from './types.ts';
 import type { ConceptRow } from '../probes/types.ts';
 
@@ -70,22 +70,26 @@ export function scoreStudy(db: Database.Database, options: Partial<ScoreOptions>
   const relatedness = buildRelatedness(labels.labels, labels, readConcepts(db), override ? JSON.parse(override) : null);
   const progress = new Progress('score', totalUnits, hooks.onProgress);
   const values = new Float32Array(run.probeCount);
-  const scored: { layer: LayerRow; score: UnitScore }[] = [];
-  for (const layer of layers) {
+  // One scratch for the study: label counts and N-sized buffers are built once, not per unit.
+  const scratch = createScratch(labels);
+  const scored: { layer: LayerRow; score: UnitScore; layerOrder: number }[] = [];
+  for (const [layerOrder, layer] of layers.entries()) {
     const partials = [];
     for (let u = 0; u < layer.units; u++) {
       if (hooks.signal?.aborted) throw new SkeinError({ code: 'cancelled', message: 'Scoring cancelled; the cached activations are kept. Run it again to score.' });
       readUnit(db, run, layer.id, u, values);
-      partials.push(scoreUnitPartial(u, values, labels, opts));
+      partials.push(scoreUnitPartial(u, values, labels, opts, scratch));
       progress.advance(1);
     }
-    for (const score of finishLayer(partials, relatedness, opts)) scored.push({ layer, score });
+    for (const score of finishLayer(partials, relatedness, opts)) scored.push({ layer, score, layerOrder });
   }
   const ranked = rankUnits(scored);
   writeScores(db, ranked, relatedness, key, opts);
   progress.finish();
   return { reused: false, layers: layers.length, units: totalUnits, seconds: (Date.now() - started) / 1000 };
 }
+
+const nullIfNaN = (x: number) => (Number.isNaN(x) ? null : x);
 
 function writeScores(db: Database.Database, ranked: { layer: LayerRow; score: UnitScore }[], rel: Relatedness, key: string, opts: ScoreOptions): void {
   db.transaction(() => {
@@ -97,7 +101,8 @@ function writeScores(db: Database.Database, ranked: { layer: LayerRow; score: Un
       insScore.run(layer.id, s.unit, rank, s.conceptCount, s.selectivity, s.evidence, JSON.stringify(s.flags), JSON.stringify(s.drivers),
         s.explanation ? JSON.stringify(s.explanation) : null, s.activeFraction, s.mean, s.max, s.topThreshold,
         Buffer.from(s.topProbes.buffer, s.topProbes.byteOffset, s.topProbes.byteLength), floatsToBlob(s.topValues));
-      for (const st of s.stats) insLabel.run(layer.id, s.unit, st.label, st.n1, st.meanWith, st.meanWithout, st.auroc, st.topHits, st.p, st.q);
+      // A mean over no probes is NaN, which SQLite stores as NULL; readers map it back to null.
+      for (const st of s.stats) insLabel.run(layer.id, s.unit, st.label, st.n1, nullIfNaN(st.meanWith), nullIfNaN(st.meanWithout), st.auroc, st.topHits, st.p, st.q);
     });
     const insRel = db.prepare(`INSERT INTO relatedness (a, b, similarity, source) VALUES (?, ?, ?, ?)`);
     const L = rel.labels.length;

@@ -14,7 +14,8 @@ export interface RankRow {
 }
 
 export interface LabelStatRow {
-  label: string; n1: number; meanWith: number; meanWithout: number; auroc: number; topHits: number; p: number; q: number;
+  /** null when no probe has (or every probe has) the label */
+  label: string; n1: number; meanWith: number | null; meanWithout: number | null; auroc: number; topHits: number; p: number; q: number;
 }
 
 export interface TopExample {
@@ -93,8 +94,8 @@ export function unitDetail(db: Database.Database, layerName: string, unit: numbe
   const names = labelNames(db);
   const r = db.prepare(`SELECT * FROM unit_score WHERE layer_id = ? AND unit = ?`).get(layer.id, unit) as ScoreRowRaw;
   const base = toRankRow(r, new Map([[layer.id, layer]]), names);
-  const stats = (db.prepare(`SELECT * FROM unit_label WHERE layer_id = ? AND unit = ? ORDER BY label`).all(layer.id, unit) as Record<string, number>[])
-    .map((s) => ({ label: names[s.label], n1: s.n1, meanWith: s.mean_with, meanWithout: s.mean_without, auroc: s.auroc, topHits: s.top_hits, p: s.p, q: s.q }));
+  const stats = (db.prepare(`SELECT * FROM unit_label WHERE layer_id = ? AND unit = ? ORDER BY label`).all(layer.id, unit) as Record<string, number | null>[])
+    .map((s) => ({ label: names[s.label as number], n1: s.n1 as number, meanWith: s.mean_with, meanWithout: s.mean_without, auroc: s.auroc as number, topHits: s.top_hits as number, p: s.p as number, q: s.q as number }));
   const probes = Array.from(blobToInt32(r.top_probes));
   const values = blobToFloats(r.top_values);
   const locations = layer.kind === 'conv' || layer.kind === 'sequence' ? readUnitArgmax(db, run, layer.id, unit, probes) : probes.map(() => null);

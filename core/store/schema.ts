@@ -86,11 +86,45 @@ export const migrations: string[] = [
   CREATE TABLE unit_label (
     layer_id INTEGER NOT NULL REFERENCES layer(id) ON DELETE CASCADE,
     unit INTEGER NOT NULL, label INTEGER NOT NULL,
-    n1 INTEGER NOT NULL, mean_with REAL NOT NULL, mean_without REAL NOT NULL, auroc REAL NOT NULL,
+    n1 INTEGER NOT NULL, mean_with REAL, mean_without REAL, auroc REAL NOT NULL,   -- a mean over no probes is NULL
     top_hits INTEGER NOT NULL, p REAL NOT NULL, q REAL NOT NULL,
     PRIMARY KEY (layer_id, unit, label)
   ) WITHOUT ROWID;
   CREATE INDEX unit_label_by_label ON unit_label(label, auroc);
+  `,
+  // 1 → 2: review annotations (core/review). `annotation` is the current state per unit, a cache derived from
+  // `annotation_event`, the append-only history that bundles carry and merging unions by event id.
+  `
+  CREATE TABLE annotation (
+    model_fp TEXT NOT NULL, probes_fp TEXT NOT NULL, layer TEXT NOT NULL, unit INTEGER NOT NULL,
+    tags TEXT NOT NULL DEFAULT '[]',      -- JSON array of tag names, sorted
+    note TEXT NOT NULL DEFAULT '',        -- plain text / Markdown source
+    status TEXT NOT NULL DEFAULT 'unreviewed',
+    conflicts TEXT NOT NULL DEFAULT '[]', -- JSON array of fields with concurrent edits not yet resolved
+    reviewer TEXT, created_at TEXT, updated_at TEXT,
+    version INTEGER NOT NULL DEFAULT 0,   -- local optimistic-concurrency counter, +1 per write to this unit
+    PRIMARY KEY (model_fp, probes_fp, layer, unit)
+  ) WITHOUT ROWID;
+
+  CREATE TABLE annotation_event (
+    seq INTEGER PRIMARY KEY,              -- local arrival order; not part of merging
+    id TEXT NOT NULL UNIQUE,              -- random UUID, the merge identity
+    model_fp TEXT NOT NULL, probes_fp TEXT NOT NULL, layer TEXT NOT NULL, unit INTEGER NOT NULL,
+    field TEXT NOT NULL,                  -- note | status | tag:<name>
+    old_value TEXT NOT NULL, new_value TEXT NOT NULL, -- JSON values
+    parents TEXT NOT NULL,                -- JSON array: ids of this field's latest events when the edit was made
+    author TEXT NOT NULL, at TEXT NOT NULL,
+    edit TEXT NOT NULL,                   -- events made by one edit share this id (undo reverts them together)
+    undoes TEXT,                          -- the edit this event reverts, if any
+    origin TEXT NOT NULL,                 -- local | import
+    source_id TEXT                        -- the bundle's event id when imported under a layer mapping
+  );
+  CREATE INDEX annotation_event_key ON annotation_event(model_fp, probes_fp, layer, unit, field);
+  CREATE INDEX annotation_event_author ON annotation_event(author, seq);
+  CREATE TRIGGER annotation_event_no_update BEFORE UPDATE ON annotation_event
+    BEGIN SELECT RAISE(ABORT, 'review history is append-only'); END;
+  CREATE TRIGGER annotation_event_no_delete BEFORE DELETE ON annotation_event
+    BEGIN SELECT RAISE(ABORT, 'review history is append-only'); END;
   `,
 ];
 
