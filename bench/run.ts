@@ -1,0 +1,259 @@
+/**
+ * npm run bench [-- --quick] [-- --only scan,storage,scoring,memory,scale,ui]
+ *
+ * Every figure is measured side by side in this one run (a ratio of two things measured on the same machine, at the
+ * same time, interleaved, medians over repeats), never in a timed test. Prints, per figure, what was run, the sizes,
+ * the measured values and the ratio against its target; writes bench/results.json and bench/out/report.md
+ * (--quick: bench/out/quick/, small sizes, a smoke run that still checks every number against the yardstick).
+ */
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { createRequire } from 'node:module';
+import Database from 'better-sqlite3';
+import { mlp, cnn } from './lib/models.ts';
+import { benchDir, seconds } from './lib/measure.ts';
+import { scanFigure, type ScanFigure } from './figures/scan.ts';
+import { storageFigure, type StorageFigure } from './figures/storage.ts';
+import { scoringFigure, type ScoringFigure } from './figures/scoring.ts';
+import { scaleAxis, scoreJobPoint, type AxisResult, type JobPoint } from './figures/memory.ts';
+import { uiFigure, type UiFigure } from './figures/ui.ts';
+import type { SyntheticSpec } from './lib/synthetic.ts';
+
+const FIGURES = ['scan', 'storage', 'scoring', 'memory', 'scale', 'ui'] as const;
+type FigureName = (typeof FIGURES)[number];
+
+interface Sizes {
+  scanProbes: number;
+  scanReps: number;
+  mlpWidths: number[];
+  cnn: [number, number, number, number];
+  storageUnits: number;
+  storageProbes: number;
+  storageReps: number;
+  scoring: SyntheticSpec;
+  scoringReps: number;
+  scoringJobReps: number;
+  naiveUnits: number;
+  memory: SyntheticSpec;
+  scaleBase: SyntheticSpec;
+  scale: { probes: number[]; units: number[]; labels: number[] };
+  uiUnits: number;
+  uiProbes: number;
+  uiReps: number;
+}
+
+const FULL: Sizes = {
+  scanProbes: 20_000, scanReps: 3, mlpWidths: [784, 2048, 2048, 10], cnn: [28, 32, 64, 128],
+  storageUnits: 4096, storageProbes: 20_000, storageReps: 3,
+  scoring: { probes: 20_000, units: 4096, labels: 30, seed: 5 }, scoringReps: 3, scoringJobReps: 3, naiveUnits: 16,
+  memory: { probes: 200_000, units: 4096, labels: 30, seed: 5 },
+  scaleBase: { probes: 20_000, units: 1024, labels: 30, seed: 5 },
+  scale: { probes: [20_000, 60_000, 200_000], units: [1024, 2048, 4096], labels: [10, 30, 100] },
+  uiUnits: 100_000, uiProbes: 1024, uiReps: 5,
+};
+
+const QUICK: Sizes = {
+  scanProbes: 512, scanReps: 1, mlpWidths: [784, 256, 256, 10], cnn: [28, 8, 16, 32],
+  storageUnits: 256, storageProbes: 4096, storageReps: 1,
+  scoring: { probes: 2000, units: 256, labels: 30, seed: 5 }, scoringReps: 1, scoringJobReps: 1, naiveUnits: 2,
+  memory: { probes: 20_000, units: 128, labels: 30, seed: 5 },
+  scaleBase: { probes: 2000, units: 128, labels: 10, seed: 5 },
+  scale: { probes: [2000, 4000, 8000], units: [128, 256, 512], labels: [10, 20, 40] },
+  uiUnits: 2000, uiProbes: 256, uiReps: 2,
+};
+
+export interface ResultEntry {
+  name: string;
+  value: number | null;
+  unit: string;
+  /** e.g. ">= 0.8"; null where the issue sets no target. */
+  target: string | null;
+  note?: string;
+}
+
+function parseArgs(argv: string[]): { quick: boolean; only: Set<FigureName> } {
+  const quick = argv.includes('--quick');
+  const at = argv.findIndex((a) => a === '--only' || a.startsWith('--only='));
+  let only = new Set<FigureName>(FIGURES);
+  if (at >= 0) {
+    const list = argv[at].includes('=') ? argv[at].split('=')[1] : argv[at + 1] ?? '';
+    const names = list.split(',').map((s) => s.trim()).filter(Boolean);
+    for (const n of names) if (!FIGURES.includes(n as FigureName)) throw new Error(`--only: unknown figure "${n}" (known: ${FIGURES.join(', ')})`);
+    only = new Set(names as FigureName[]);
+  }
+  return { quick, only };
+}
+
+const mb = (bytes: number) => `${(bytes / 1e6).toFixed(0)} MB`;
+const f2 = (x: number) => x.toFixed(2);
+const k = (x: number) => (x >= 1e6 ? `${(x / 1e6).toFixed(2)} M` : x >= 1e3 ? `${(x / 1e3).toFixed(1)} k` : x.toFixed(0));
+const verdict = (ok: boolean) => (ok ? 'met' : 'MISSED');
+
+function machine(): Record<string, string> {
+  const require = createRequire(import.meta.url);
+  const db = new Database(':memory:');
+  const sqlite = db.prepare('select sqlite_version()').pluck().get() as string;
+  db.close();
+  return {
+    cpu: `${os.cpus()[0]?.model ?? '?'} × ${os.cpus().length}`,
+    memory: `${(os.totalmem() / 2 ** 30).toFixed(1)} GiB`,
+    os: `${os.type()} ${os.release()}`,
+    node: process.version,
+    onnxruntime: (require('onnxruntime-node/package.json') as { version: string }).version,
+    'better-sqlite3': (require('better-sqlite3/package.json') as { version: string }).version,
+    sqlite,
+    'load average at start': os.loadavg().map((x) => x.toFixed(1)).join(' '),
+  };
+}
+
+async function main(): Promise<void> {
+  const { quick, only } = parseArgs(process.argv.slice(2));
+  const sizes = quick ? QUICK : FULL;
+  const outDir = path.join(benchDir, 'out', quick ? 'quick' : 'full');
+  fs.mkdirSync(outDir, { recursive: true });
+  const started = process.hrtime.bigint();
+  const results: ResultEntry[] = [];
+  const md: string[] = [];
+  const say = (s = '') => { console.log(s); };
+  const log = (s: string) => console.log(s);
+  const info = machine();
+  say(`skein bench${quick ? ' --quick' : ''}: ${Object.entries(info).map(([a, b]) => `${a} ${b}`).join('; ')}`);
+  md.push(`Machine: ${Object.entries(info).map(([a, b]) => `${a}: ${b}`).join('; ')}.`, '');
+
+  if (only.has('scan')) {
+    say('\n== Scan overhead: scan (capture every default layer + write the study) vs raw onnxruntime inference ==');
+    say(`command: extract({ model, probes, study, batch: 64 }) (core/extract/scan.ts) vs InferenceSession.run(batch 64, model outputs only), ${sizes.scanReps} interleaved repeats, medians`);
+    const figs: ScanFigure[] = [];
+    for (const model of [mlp(sizes.mlpWidths), cnn(...sizes.cnn)]) {
+      const f = await scanFigure(path.join(outDir, 'scan'), model, sizes.scanProbes, sizes.scanReps, log);
+      figs.push(f);
+      say(`sizes: ${f.description}; ${f.probes} probes, batch ${f.batch}; layers ${f.layers.map((l) => `${l.name}[${l.units} ${l.kind}]`).join(' ')} = ${f.units} units, ${mb(f.activationBytes)} of activations, study ${mb(f.studyBytes)}`);
+      say(`raw ${k(f.rawRate)} probes/s | capture only (no store) ${k(f.captureRate)} probes/s (${f2(f.captureRatio)}×) | scan ${k(f.scanRate)} probes/s`);
+      say(`ratio scan/raw: ${f2(f.ratio)}× (target ≥ 0.80: ${verdict(f.ratio >= 0.8)})`);
+      results.push({ name: `scan_vs_raw_${f.model.startsWith('mlp') ? 'mlp' : 'cnn'}`, value: f.ratio, unit: 'ratio', target: '>= 0.8', note: `${f.description}, ${f.probes} probes` });
+    }
+    const worst = figs.reduce((a, b) => (a.ratio <= b.ratio ? a : b));
+    results.unshift({ name: 'scan_vs_raw', value: worst.ratio, unit: 'ratio', target: '>= 0.8', note: `lower of the two models (${worst.model})` });
+    md.push('### Scan overhead', '', '| model | probes | units captured | raw probes/s | capture-only probes/s | scan probes/s | scan/raw | target |', '|---|---|---|---|---|---|---|---|');
+    for (const f of figs) md.push(`| ${f.description} | ${f.probes} | ${f.units} (${mb(f.activationBytes)}) | ${k(f.rawRate)} | ${k(f.captureRate)} (${f2(f.captureRatio)}×) | ${k(f.scanRate)} | **${f2(f.ratio)}×** | ≥ 0.8 ${verdict(f.ratio >= 0.8)} |`);
+    md.push('', `Runs (s): ${figs.map((f) => `${f.model}: raw ${f.rawSeconds.map(f2).join('/')}, capture ${f.captureSeconds.map(f2).join('/')}, scan ${f.scanSeconds.map(f2).join('/')}`).join('; ')}.`, '');
+  }
+
+  let storage: StorageFigure | null = null;
+  if (only.has('storage')) {
+    say('\n== Storage: the study write path vs raw sequential SQLite inserts of the same bytes ==');
+    say(`command: the scan's chunk commit (one row per unit × chunk, one transaction per chunk, WAL, synchronous=FULL) vs INSERT INTO raw(vals) in one transaction; ${sizes.storageReps} interleaved repeats`);
+    storage = await storageFigure(path.join(outDir, 'storage'), sizes.storageUnits, sizes.storageProbes, sizes.storageReps, log);
+    const s = storage;
+    say(`sizes: ${s.units} units × ${s.probes} probes = ${mb(s.bytes)}, chunks of ${s.chunkSize} probes (${s.chunkSize * 4}-byte blobs)`);
+    say(`raw ${f2(s.rawMbPerSecond)} MB/s | raw with the study's durability (WAL, FULL, commit per chunk) ${f2(s.rawChunkedMbPerSecond)} MB/s | study ${f2(s.studyMbPerSecond)} MB/s`);
+    say(`ratio study/raw: ${f2(s.ratio)}× (no target set); size ${f2(s.studyMbPerMillion)} MB per million activations (raw table ${f2(s.rawMbPerMillion)}, float32 alone 4.00)`);
+    results.push({ name: 'write_vs_raw', value: s.ratio, unit: 'ratio', target: null, note: `${mb(s.bytes)}: study ${f2(s.studyMbPerSecond)} MB/s, raw ${f2(s.rawMbPerSecond)} MB/s` });
+    results.push({ name: 'write_mb_per_s', value: s.studyMbPerSecond, unit: 'MB/s', target: null });
+    results.push({ name: 'study_mb_per_million_activations', value: s.studyMbPerMillion, unit: 'MB', target: null, note: 'float32 alone is 4.00' });
+    md.push('### Storage', '', '| writer | MB/s | file MB per million activations |', '|---|---|---|',
+      `| raw: rowid table, one transaction (SQLite defaults) | ${f2(s.rawMbPerSecond)} | ${f2(s.rawMbPerMillion)} |`,
+      `| raw with the study's durability (WAL, synchronous=FULL, commit per chunk) | ${f2(s.rawChunkedMbPerSecond)} | |`,
+      `| study write path (core/store schema, the scan's statements) | ${f2(s.studyMbPerSecond)} | ${f2(s.studyMbPerMillion)} |`,
+      '', `${s.units} units × ${s.probes} probes = ${mb(s.bytes)}; study/raw **${f2(s.ratio)}×**. Runs (s): raw ${s.rawSeconds.map(f2).join('/')}, raw-durable ${s.rawChunkedSeconds.map(f2).join('/')}, study ${s.studySeconds.map(f2).join('/')}.`, '');
+  }
+
+  const jobCache = new Map<string, JobPoint>();
+  if (only.has('scoring')) {
+    const sp = sizes.scoring;
+    say('\n== Scoring: every statistic, the kernel against a straightforward computation ==');
+    say(`command: scoreUnitPartial (one Scratch) per unit + finishLayer + rankUnits (core/score), in memory; scoreStudy (core/score/job.ts) on a study, in a child; naive: bench/lib/naive.ts`);
+    const f: ScoringFigure = scoringFigure(sp, sizes.scoringReps, sizes.naiveUnits, log);
+    say(`sizes: ${sp.probes} probes × ${sp.units} units × ${sp.labels} labels`);
+    say(`kernel: ${f2(f.kernelSeconds)} s (pass 1 ${f.pass1Seconds.map(f2).join('/')} s, pass 2 ${f.pass2Seconds.map(f2).join('/')} s), ${k(f.unitProbesPerSecond)} unit·probes/s`);
+    say(`same ${f.sampleUnits} units side by side: kernel ${f2(f.sampleKernelSeconds * 1000 / f.sampleUnits)} ms/unit, full sort per unit and label ${f2(f.sampleNaiveSeconds * 1000 / f.sampleUnits)} ms/unit`);
+    say(`ratio straightforward/kernel: ${f2(f.naiveSpeedup)}× (straightforward for all ${sp.units} units ≈ ${f2(f.naiveExtrapolatedSeconds)} s, extrapolated from ${f.sampleUnits} units)`);
+    say(`as the job calls pass 1 today (a Scratch built per unit): ${f2(f.noScratchSlowdown)}× the kernel's time (≈ ${f2(f.noScratchExtrapolatedSeconds)} s for all units)`);
+    const a = f.agreement;
+    say(`numbers: ${a.cells} unit×label cells compared: max |ΔAUROC| ${a.maxAurocDiff.toExponential(1)}, max relative Δmean ${a.maxMeanRelDiff.toExponential(1)}, top-set hit mismatches ${a.topHitMismatches}, max relative Δp ${a.maxPRelDiff.toExponential(1)} (bounds 1e-12, 1e-9, 0, 1e-6: met)`);
+    const job = await scoreJobPoint(path.join(outDir, 'studies'), sp, log, sizes.scoringJobReps);
+    jobCache.set(`${sp.probes}x${sp.units}x${sp.labels}`, job);
+    say(`scoreStudy end to end (reads the study, scores, writes scores): ${f2(job.scoreSeconds)} s (runs ${job.runs.map(f2).join('/')}), ${k((sp.units * sp.probes) / job.scoreSeconds)} unit·probes/s, peak RSS ${job.peakRssMb.toFixed(0)} MiB`);
+    results.push({ name: 'scoring_seconds', value: job.scoreSeconds, unit: 's', target: null, note: `scoreStudy, ${sp.probes} × ${sp.units} × ${sp.labels}, end to end` });
+    results.push({ name: 'scoring_unit_probes_per_s', value: (sp.units * sp.probes) / job.scoreSeconds, unit: 'unit·probes/s', target: null });
+    results.push({ name: 'scoring_kernel_seconds', value: f.kernelSeconds, unit: 's', target: null, note: 'in memory, one Scratch' });
+    results.push({ name: 'scoring_naive_vs_kernel', value: f.naiveSpeedup, unit: 'ratio', target: null, note: `full sort per unit and label, ${f.sampleUnits} units side by side` });
+    results.push({ name: 'scoring_job_scratch_overhead', value: f.noScratchSlowdown, unit: 'ratio', target: null, note: 'pass 1 without a shared Scratch / with' });
+    md.push('### Scoring', '', `${sp.probes} probes × ${sp.units} units × ${sp.labels} labels.`, '', '| what | seconds | unit·probes/s |', '|---|---|---|',
+      `| scoreStudy end to end (SQLite read, both passes, ranking, score write), median of ${job.runs.length} | ${f2(job.scoreSeconds)} | ${k((sp.units * sp.probes) / job.scoreSeconds)} |`,
+      `| kernel in memory (pass 1 with one Scratch + pass 2 + rank), median of ${f.reps} | ${f2(f.kernelSeconds)} | ${k(f.unitProbesPerSecond)} |`,
+      `| pass 1 as scoreStudy calls it (Scratch per unit), extrapolated from ${f.sampleUnits} units | ${f2(f.noScratchExtrapolatedSeconds)} | |`,
+      `| straightforward: full sort per unit and label, extrapolated from ${f.sampleUnits} units | ${f2(f.naiveExtrapolatedSeconds)} | |`,
+      '', `Side by side on the same ${f.sampleUnits} units: straightforward/kernel **${f2(f.naiveSpeedup)}×**; Scratch per unit/shared Scratch ${f2(f.noScratchSlowdown)}×.`,
+      `Agreement over ${a.cells} unit × label cells: max |ΔAUROC| ${a.maxAurocDiff.toExponential(1)} (bound 1e-12), max relative Δmean ${a.maxMeanRelDiff.toExponential(1)} (1e-9), top-set hit mismatches ${a.topHitMismatches} (0), max relative Δp ${a.maxPRelDiff.toExponential(1)} over ${a.pCompared} p-values (1e-6).`, '');
+  }
+
+  if (only.has('memory')) {
+    const sp = sizes.memory;
+    say('\n== Memory: peak resident memory of the scoring job ==');
+    say(`command: node bench/child/score.ts <study> → scoreStudy (core/score/job.ts); peak RSS = the child's getrusage maxRSS`);
+    const p = await scoreJobPoint(path.join(outDir, 'studies'), sp, log);
+    jobCache.set(`${sp.probes}x${sp.units}x${sp.labels}`, p);
+    say(`sizes: ${sp.probes} probes × ${sp.units} units × ${sp.labels} labels = ${(p.activationBytes / 1e9).toFixed(2)} GB of float32 (study file ${(p.studyBytes / 1e9).toFixed(2)} GB)`);
+    say(`peak RSS ${p.peakRssMb.toFixed(0)} MiB (before scoring ${p.baselineRssMb.toFixed(0)} MiB), scoring ${f2(p.scoreSeconds)} s`);
+    say(`ratio peak RSS / activation bytes: ${f2((p.peakRssMb * 2 ** 20) / p.activationBytes)}; target ≤ 1.5 GB: ${verdict(p.peakRssMb * 2 ** 20 <= 1.5e9)}`);
+    results.push({ name: 'peak_rss_mb', value: p.peakRssMb, unit: 'MiB', target: '<= 1430 (1.5 GB)', note: `scoreStudy on ${sp.probes} × ${sp.units} (${(p.activationBytes / 1e9).toFixed(2)} GB float32)` });
+    results.push({ name: 'memory_scoring_seconds', value: p.scoreSeconds, unit: 's', target: null, note: `${sp.probes} × ${sp.units} × ${sp.labels}` });
+    md.push('### Memory', '', `scoreStudy on ${sp.probes} probes × ${sp.units} units × ${sp.labels} labels (${(p.activationBytes / 1e9).toFixed(2)} GB float32, study file ${(p.studyBytes / 1e9).toFixed(2)} GB): peak RSS **${p.peakRssMb.toFixed(0)} MiB** (${p.baselineRssMb.toFixed(0)} MiB before scoring starts), ${f2(p.scoreSeconds)} s. Target ≤ 1.5 GB: ${verdict(p.peakRssMb * 2 ** 20 <= 1.5e9)}.`, '');
+  }
+
+  if (only.has('scale')) {
+    say('\n== Scale: scoreStudy time and peak memory along each axis ==');
+    const axes: AxisResult[] = [];
+    for (const axis of ['probes', 'units', 'labels'] as const) {
+      const r = await scaleAxis(path.join(outDir, 'studies'), sizes.scaleBase, axis, sizes.scale[axis], jobCache, log);
+      axes.push(r);
+      say(`${axis}: ${r.points.map((p) => `${p.spec[axis]} → ${f2(p.scoreSeconds)} s, ${p.peakRssMb.toFixed(0)} MiB`).join(' | ')}`);
+      say(`  time ∝ ${axis}^${f2(r.timeSlope)} (${r.timeGrowth}); memory above the process floor ∝ ${axis}^${f2(r.memorySlope)} (${r.memoryGrowth})`);
+      results.push({ name: `scale_time_exponent_${axis}`, value: r.timeSlope, unit: 'log-log slope', target: null });
+      results.push({ name: `scale_memory_exponent_${axis}`, value: r.memorySlope, unit: 'log-log slope', target: null });
+    }
+    const b = sizes.scaleBase;
+    md.push('### Scale', '', `Base point ${b.probes} probes × ${b.units} units × ${b.labels} labels; one axis varied at a time; scoreStudy in a child process (one run per point).`, '',
+      '| axis | size | probes × units × labels | seconds | peak RSS MiB | RSS before scoring MiB |', '|---|---|---|---|---|---|');
+    for (const r of axes) for (const p of r.points) md.push(`| ${r.axis} | ${p.spec[r.axis]} | ${p.spec.probes} × ${p.spec.units} × ${p.spec.labels} | ${f2(p.scoreSeconds)} | ${p.peakRssMb.toFixed(0)} | ${p.baselineRssMb.toFixed(0)} |`);
+    md.push('', '| axis | time grows as | memory (above the floor) grows as |', '|---|---|---|');
+    for (const r of axes) md.push(`| ${r.axis} | ${r.axis}^${f2(r.timeSlope)}: ${r.timeGrowth} | ${r.axis}^${f2(r.memorySlope)}: ${r.memoryGrowth} |`);
+    md.push('');
+  }
+
+  if (only.has('ui')) {
+    say('\n== UI (Chromium, browser mode) ==');
+    const u: UiFigure = await uiFigure(path.join(outDir, 'ui'), sizes.uiUnits, sizes.uiProbes, sizes.uiReps, log);
+    if (!u.measured) {
+      say(`not measured: ${u.reason}`);
+      for (const name of ['ui_open_ms', 'ui_detail_ms', 'ui_filter_ms']) results.push({ name, value: null, unit: 'ms', target: name === 'ui_open_ms' ? '< 1000' : name === 'ui_detail_ms' ? '< 150' : '< 100', note: `not measured: ${u.reason}` });
+      md.push('### UI', '', `Not measured: ${u.reason}`, '');
+    } else {
+      say(`command: ${u.command}`);
+      say(`sizes: study of ${u.units} units (${u.probes} probes)`);
+      say(`open → first ranked rows ${u.openMs.toFixed(0)} ms (target < 1000: ${verdict(u.openMs < 1000)}) | unit detail ${u.detailMs.toFixed(0)} ms (< 150: ${verdict(u.detailMs < 150)}) | filter keystroke → rows ${u.filterMs.toFixed(0)} ms (< 100: ${verdict(u.filterMs < 100)})`);
+      results.push({ name: 'ui_open_ms', value: u.openMs, unit: 'ms', target: '< 1000', note: `${u.units} units` });
+      results.push({ name: 'ui_detail_ms', value: u.detailMs, unit: 'ms', target: '< 150' });
+      results.push({ name: 'ui_filter_ms', value: u.filterMs, unit: 'ms', target: '< 100' });
+      md.push('### UI', '', `${u.command}; study of ${u.units} units; medians of ${u.reps}.`, '', '| step | ms | target |', '|---|---|---|',
+        `| open the study → first ranked rows | ${u.openMs.toFixed(0)} | < 1000 ${verdict(u.openMs < 1000)} |`,
+        `| open a unit's detail | ${u.detailMs.toFixed(0)} | < 150 ${verdict(u.detailMs < 150)} |`,
+        `| one filter keystroke → updated rows | ${u.filterMs.toFixed(0)} | < 100 ${verdict(u.filterMs < 100)} |`, '');
+    }
+  }
+
+  const total = seconds(started);
+  say(`\nbench finished in ${(total / 60).toFixed(1)} min; load average now ${os.loadavg().map((x) => x.toFixed(1)).join(' ')}`);
+  md.push(`Total bench time ${(total / 60).toFixed(1)} min; load average at the end ${os.loadavg().map((x) => x.toFixed(1)).join(' ')}.`);
+  const resultsFile = quick || only.size < FIGURES.length ? path.join(outDir, 'results.json') : path.join(benchDir, 'results.json');
+  fs.writeFileSync(resultsFile, JSON.stringify(results, null, 1) + '\n');
+  fs.writeFileSync(path.join(outDir, 'report.md'), md.join('\n') + '\n');
+  say(`wrote ${path.relative(process.cwd(), resultsFile)} and ${path.relative(process.cwd(), path.join(outDir, 'report.md'))}`);
+}
+
+main().catch((e) => {
+  console.error(e instanceof Error ? e.stack ?? e.message : String(e));
+  process.exitCode = 1;
+});
