@@ -1,0 +1,57 @@
+/**
+ * Which units an export or a report takes: every criterion given must hold (AND); a list criterion holds when any of
+ * its entries does (OR). `units` is an explicit selection (the rows picked in the unit table); in a report it may name
+ * units nobody annotated yet.
+ */
+import { z } from 'zod';
+import { reviewerSchema, statusSchema, tagSchema } from './vocabulary.ts';
+import type { Annotation } from './store.ts';
+
+export const filterSchema = z.strictObject({
+  tags: z.array(tagSchema).min(1).max(64).optional(),
+  statuses: z.array(statusSchema).min(1).max(16).optional(),
+  layers: z.array(z.string().min(1).max(1024)).min(1).max(10_000).optional(),
+  units: z.array(z.strictObject({ layer: z.string().min(1).max(1024), unit: z.number().int().min(0) })).min(1).max(100_000).optional(),
+  reviewers: z.array(reviewerSchema).min(1).max(64).optional(),
+  /** Only units with unresolved conflicts (true) or without (false). */
+  conflicted: z.boolean().optional(),
+  /** Case-insensitive text the note must contain. */
+  text: z.string().min(1).max(200).optional(),
+});
+
+export type ReviewFilter = z.infer<typeof filterSchema>;
+
+/** The unit has something a reviewer wrote: a tag, a note, a status or an open conflict. */
+export function hasContent(a: Annotation): boolean {
+  return a.tags.length > 0 || a.note !== '' || a.status !== 'unreviewed' || a.conflicts.length > 0;
+}
+
+export function selectionKey(layer: string, unit: number): string {
+  return `${layer}\u0000${unit}`;
+}
+
+export function matchesFilter(a: Annotation, f: ReviewFilter | null | undefined, selected?: ReadonlySet<string>): boolean {
+  if (!f) return true;
+  if (f.tags && !f.tags.some((t) => a.tags.includes(t))) return false;
+  if (f.statuses && !f.statuses.includes(a.status)) return false;
+  if (f.layers && !f.layers.includes(a.layer)) return false;
+  if (f.units && !(selected ?? new Set(f.units.map((u) => selectionKey(u.layer, u.unit)))).has(selectionKey(a.layer, a.unit))) return false;
+  if (f.reviewers && !(a.reviewer !== null && f.reviewers.includes(a.reviewer))) return false;
+  if (f.conflicted !== undefined && (a.conflicts.length > 0) !== f.conflicted) return false;
+  if (f.text && !a.note.toLowerCase().includes(f.text.toLowerCase())) return false;
+  return true;
+}
+
+/** A filter in words, for report headers and CLI messages. */
+export function describeFilter(f: ReviewFilter | null | undefined): string {
+  if (!f || Object.keys(f).length === 0) return 'all annotated units';
+  const parts: string[] = [];
+  if (f.tags) parts.push(`tagged ${f.tags.join(' or ')}`);
+  if (f.statuses) parts.push(`status ${f.statuses.join(' or ')}`);
+  if (f.layers) parts.push(`in ${f.layers.join(', ')}`);
+  if (f.units) parts.push(`${f.units.length} selected unit${f.units.length === 1 ? '' : 's'}`);
+  if (f.reviewers) parts.push(`last changed by ${f.reviewers.join(' or ')}`);
+  if (f.conflicted !== undefined) parts.push(f.conflicted ? 'with open conflicts' : 'without open conflicts');
+  if (f.text) parts.push(`note mentions "${f.text}"`);
+  return parts.join(', ');
+}
