@@ -7,6 +7,7 @@ import { fileURLToPath } from 'node:url';
 import { parseArgs, type ParseArgsConfig } from 'node:util';
 import { createApi, parseRequest, runScan, toErrorInfo } from '../api/index.ts';
 import type { RankRow, UnitDetail, ModelInfo, ProgressReport } from '../api/contract.ts';
+import { REVIEW_HELP, reviewCommand, reportCommand } from './review.ts';
 
 const HELP = `skein — find the polysemantic units of an ONNX model on a labelled probe set
 
@@ -17,6 +18,7 @@ const HELP = `skein — find the polysemantic units of an ONNX model on a labell
   skein export <study> --scores out.csv|out.json
   skein export <study> --activations out.npy --layer L
   skein demo [--study file]      scan the bundled demo and print the ranked units
+${REVIEW_HELP}
 
 Scores are statistical hypotheses about the model on this probe set, not proof: check a unit before pruning or
 trusting it.`;
@@ -176,6 +178,10 @@ export async function main(argv: string[]): Promise<number> {
         }
         return 0;
       }
+      case 'review':
+        return await reviewCommand(rest, api);
+      case 'report':
+        return await reportCommand(rest, api);
       case undefined:
       case 'help':
       case '--help':
