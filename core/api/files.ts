@@ -9,7 +9,7 @@ import { fileURLToPath } from 'node:url';
 import { z } from 'zod';
 import { SkeinError } from '../errors.ts';
 import { openStudyDb } from '../store/study.ts';
-import { isInsideRoots, type ApiContext } from './index.ts';
+import type { ApiContext } from './index.ts';
 
 export const fileRequests = {
   /** Absolute paths of the demo model, probe set and the study it goes into (in the user's data folder). */
@@ -117,6 +117,9 @@ export function createFileApi(ctx: ApiContext) {
     'fs.roots': async (_r: z.infer<(typeof fileRequests)['fs.roots']>): Promise<string[]> => roots().map((r) => path.resolve(r)),
 
     'fs.list': async (r: z.infer<(typeof fileRequests)['fs.list']>): Promise<FolderListing> => {
+      // Imported when called: index.ts imports contract.ts, which imports this file, so a static import is a cycle
+      // that breaks whenever this file is the first of the three to load (app/start.ts, app/main).
+      const { isInsideRoots } = await import('./index.ts');
       const dir = path.resolve(r.dir);
       const allowed = roots();
       // dispatch already checked r.dir; checked again because entries below are filtered with the same rule.
