@@ -108,6 +108,38 @@ describe('fs.list', () => {
   });
 });
 
+describe('study.saveAs', () => {
+  it('writes a consistent copy that opens as the same study, and leaves the original as it was', async () => {
+    const from = path.join(root, 'first.study');
+    const before = fs.readFileSync(from);
+    const out = path.join(data, 'copy.study');
+    const env = await call('study.saveAs', { study: from, out });
+    expect(env).toEqual({ ok: true, value: { file: out } });
+    const a = openStudyDb(from, { readonly: true });
+    const b = openStudyDb(out, { readonly: true });
+    try {
+      const tables = (db: typeof a) => db.prepare(`SELECT name, sql FROM sqlite_master ORDER BY name`).all();
+      expect(tables(b)).toEqual(tables(a));
+      expect(b.pragma('application_id', { simple: true })).toBe(a.pragma('application_id', { simple: true }));
+      expect(b.pragma('user_version', { simple: true })).toBe(a.pragma('user_version', { simple: true }));
+    } finally {
+      a.close();
+      b.close();
+    }
+    expect(fs.readFileSync(from).equals(before)).toBe(true);
+    expect(fs.readdirSync(data).filter((n) => n.includes('.tmp-'))).toEqual([]);
+  });
+
+  it('refuses the study itself, a name without .study, a file that is no study, and a target outside the roots', async () => {
+    const from = path.join(root, 'first.study');
+    expect((await call('study.saveAs', { study: from, out: from })).error.message).toMatch(/the study itself/);
+    expect((await call('study.saveAs', { study: from, out: path.join(data, 'copy.db') })).error).toMatchObject({ code: 'request', where: 'out' });
+    expect((await call('study.saveAs', { study: path.join(root, 'fake.study'), out: path.join(data, 'x.study') })).error.code).toBe('study');
+    expect((await call('study.saveAs', { study: from, out: path.join(outside, 'x.study') })).error).toMatchObject({ code: 'request', where: 'out' });
+    expect(fs.existsSync(path.join(outside, 'x.study'))).toBe(false);
+  });
+});
+
 describe('fs.roots and app.demo', () => {
   it('returns the roots', async () => {
     expect(await call('fs.roots', {})).toEqual({ ok: true, value: [root, data] });
