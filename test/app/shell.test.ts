@@ -155,3 +155,15 @@ describe('native binding', () => {
     expect(addonAbi(nodeBuild)).toBe(process.versions.modules);
   });
 });
+
+describe('packaging configuration', () => {
+  it('starts the packaged app at the Electron entry, ships what the shell loads, and pins the installed Electron', async () => {
+    const { default: config } = await import('../../electron.config.ts');
+    const repo = path.resolve(__dirname, '../..');
+    expect(fs.existsSync(path.join(repo, config.extraMetadata.main))).toBe(true);
+    for (const dir of ['app/main', 'app/preload', 'app/server', 'core']) expect(config.files).toContain(`${dir}/**`);
+    for (const file of ['app/main/entry.mjs', 'app/main/api-host.cjs', 'app/preload/index.cjs']) expect(fs.existsSync(path.join(repo, file))).toBe(true);
+    const installed = (JSON.parse(fs.readFileSync(path.join(repo, 'node_modules', 'electron', 'package.json'), 'utf8')) as { version: string }).version;
+    expect(config.electronVersion).toBe(installed);
+  });
+});
