@@ -25,6 +25,7 @@ const engineEntry = path.join(here, 'api-host.cjs');
 // Before `ready`: the scheme must be known as standard + secure for 'self', storage and module scripts to work.
 protocol.registerSchemesAsPrivileged([{ scheme: RENDERER_SCHEME, privileges: { standard: true, secure: true } }]);
 app.setName('Skein');
+app.setPath('userData', path.join(app.getPath('appData'), 'Skein')); // not "Electron" when run unpackaged
 app.enableSandbox();
 
 const refused = (message: string): Envelope => ({ ok: false, error: { code: 'request', message } });
@@ -62,8 +63,9 @@ function runShell(): void {
     });
   };
 
+  // Our window, its top frame (no iframe), showing our page. senderFrame is null once that frame has gone.
   const fromOurWindow = (event: IpcMainEvent | IpcMainInvokeEvent): boolean =>
-    !!win && event.sender === win.webContents && !!event.senderFrame && event.senderFrame === win.webContents.mainFrame && isRendererUrl(event.senderFrame.url);
+    !!win && event.sender === win.webContents && !!event.senderFrame && event.senderFrame.parent === null && isRendererUrl(event.senderFrame.url);
 
   function startEngine(nativeBinding: string): void {
     const child = utilityProcess.fork(engineEntry, [encodeEngineContext({ nativeBinding, dataDir: defaultDataDir() })], { serviceName: 'Skein engine', stdio: 'inherit' });
@@ -125,7 +127,7 @@ function runShell(): void {
     ses.setPermissionRequestHandler((_wc, _permission, answer) => answer(false));
     ses.setPermissionCheckHandler(() => false);
     // The page needs nothing from the network; CSP already says so, this makes it true for every request.
-    ses.webRequest.onBeforeRequest({ urls: ['http://*/*', 'https://*/*', 'ws://*/*', 'wss://*/*', 'file://*/*'] }, (_details, answer) => answer({ cancel: true }));
+    ses.webRequest.onBeforeRequest({ urls: ['*://*/*'] }, (_details, answer) => answer({ cancel: true }));
     ses.protocol.handle(RENDERER_SCHEME, async (request) => {
       const url = new URL(request.url);
       const headers = { ...SECURITY_HEADERS };
