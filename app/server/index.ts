@@ -150,6 +150,11 @@ export async function startServer(opts: ServerOptions): Promise<RunningServer> {
       return send(res, 503, MISSING_BUILD_PAGE, 'text/html; charset=utf-8', cookie);
     }
     const file = resolveStaticFile(rendererDir, url.pathname);
+    // Browsers ask for an icon on their own; "no icon" is not an error worth a red line in the console.
+    if (!file && url.pathname === '/favicon.ico') {
+      res.writeHead(204, { ...SECURITY_HEADERS, 'Cache-Control': 'no-cache' });
+      return void res.end();
+    }
     if (!file) return sendText(res, 404, 'Not found.', cookie);
     const content = fs.readFileSync(file);
         res.writeHead(200, { ...SECURITY_HEADERS, 'Content-Type': contentTypeOf(file), 'Content-Length': String(content.length), 'Cache-Control': 'no-cache', ...cookie });

@@ -208,9 +208,11 @@ describe('static files', () => {
     expect(r.body).not.toContain('"name": "skein"');
   });
 
-  it('answers a missing file with 404', async () => {
-    const r = await fetch(`${server.origin}/nothing-here.js`, { headers: await withCookie() });
-    expect(r.status).toBe(404);
+  it('answers a missing file with 404, and a missing favicon with 204 (no console error for an icon never asked for)', async () => {
+    const headers = await withCookie();
+    expect((await fetch(`${server.origin}/nothing-here.js`, { headers })).status).toBe(404);
+    expect((await fetch(`${server.origin}/favicon.ico`, { headers })).status).toBe(204);
+    expect((await fetch(`${server.origin}/favicon.ico`)).status).toBe(401);
   });
 
   it('tells the user to build the renderer when the build is missing', async () => {
