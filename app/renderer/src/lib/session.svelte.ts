@@ -1,0 +1,53 @@
+/**
+ * One open study as the screens share it: its summary, the unit table (kept raw: 10^5-row arrays must not become
+ * deep reactive proxies) and the unit table's filter, sort and cursor, which survive moving between screens.
+ */
+import { call, asErrorInfo, type Response, type ErrorInfo } from './api.ts';
+import { emptyFilter, defaultSort, allRows, filterRows, sortRows, type RosterFilter, type RosterSort, type UnitTable } from './table.ts';
+
+export class StudySession {
+  readonly path: string;
+  summary = $state.raw<Response<'study.summary'> | null>(null);
+  table = $state.raw<UnitTable | null>(null);
+  error = $state.raw<ErrorInfo | null>(null);
+  loading = $state(false);
+  filter = $state<RosterFilter>(emptyFilter());
+  /** What the "driven by" box shows (a label name once it matches one). */
+  driverText = $state('');
+  sort = $state<RosterSort>(defaultSort());
+  /** Position of the cursor in the visible (filtered, sorted) rows. */
+  cursor = $state(0);
+  scrollTop = 0;
+
+  /** Every row in the chosen order (re-sorted only when the sort changes). */
+  sorted = $derived.by(() => (this.table ? sortRows(this.table, allRows(this.table), $state.snapshot(this.sort)) : new Int32Array(0)));
+  /** Visible rows: indices into the table's columns, filtered from the sorted order. */
+  rows = $derived.by(() => (this.table ? filterRows(this.table, $state.snapshot(this.filter), this.sorted) : new Int32Array(0)));
+
+  /** Shows only the units this label drives (null: every unit). */
+  filterByDriver(label: string | null): void {
+    const id = label === null || !this.table ? -1 : this.table.labels.indexOf(label);
+    this.filter.driver = id >= 0 ? id : null;
+    this.driverText = id >= 0 ? label! : '';
+    this.cursor = 0;
+    this.scrollTop = 0;
+  }
+
+  constructor(path: string) {
+    this.path = path;
+  }
+
+  /** Loads (or reloads, after a scan) the summary and, when scored, the unit table. */
+  async load(): Promise<void> {
+    this.loading = true;
+    this.error = null;
+    try {
+      this.summary = await call('study.summary', { study: this.path });
+      this.table = this.summary.scored ? await call('units.table', { study: this.path }) : null;
+    } catch (e) {
+      this.error = asErrorInfo(e);
+    } finally {
+      this.loading = false;
+    }
+  }
+}

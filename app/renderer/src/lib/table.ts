@@ -1,0 +1,167 @@
+/**
+ * The unit table's filter and sort, as plain functions over the column arrays of 'units.table'
+ * (no per-row objects: 10^5 rows filter and sort in a few milliseconds).
+ */
+import type { UnitTable } from '../../../../core/api/screens.ts';
+
+export type { UnitTable };
+
+/** Bits of UnitTable.flags (core/store/views.ts FLAG_DEAD, FLAG_DENSE). */
+export const FLAG_DEAD = 1;
+export const FLAG_DENSE = 2;
+
+/** Which kind of unit to keep. 'mixed': concept count at or above the polysemantic threshold. */
+export type UnitKind = 'any' | 'mixed' | 'single' | 'undriven' | 'dead' | 'dense';
+
+export interface RosterFilter {
+  /** Free text: whitespace-separated terms, all must match (layer name, unit number or a driver label). */
+  text: string;
+  /** Layer indices to keep; empty keeps every layer. */
+  layers: number[];
+  kind: UnitKind;
+  /** Keep units driven by this label (index into table.labels); null keeps all. */
+  driver: number | null;
+}
+
+export const emptyFilter = (): RosterFilter => ({ text: '', layers: [], kind: 'any', driver: null });
+
+export type SortKey = 'rank' | 'layer' | 'unit' | 'concepts' | 'drivers' | 'selectivity' | 'flags' | 'review';
+export type SortDir = 1 | -1;
+export interface RosterSort { key: SortKey; dir: SortDir }
+
+/** Most polysemantic first: the study's own ranking. */
+export const defaultSort = (): RosterSort => ({ key: 'rank', dir: 1 });
+
+/** Direction a column sorts in when first clicked: big numbers first for scores, natural order otherwise. */
+export function firstDirection(key: SortKey): SortDir {
+  return key === 'concepts' || key === 'selectivity' || key === 'flags' ? -1 : 1;
+}
+
+export function kindOf(t: UnitTable, i: number): Exclude<UnitKind, 'any'> {
+  const f = t.flags[i];
+  if (f & FLAG_DEAD) return 'dead';
+  if (f & FLAG_DENSE) return 'dense';
+  const cc = t.conceptCount[i] ?? 0;
+  if (cc >= t.thresholds.polysemanticAt) return 'mixed';
+  if (cc > 0) return 'single';
+  return 'undriven';
+}
+
+export function driversOf(t: UnitTable, i: number): { label: number; name: string; share: number }[] {
+  const out = [];
+  for (let k = t.driverOffsets[i]; k < t.driverOffsets[i + 1]; k++) out.push({ label: t.driverLabel[k], name: t.labels[t.driverLabel[k]], share: t.driverShare[k] });
+  return out;
+}
+
+interface Term { layerHit: Uint8Array; labelHit: Uint8Array; unit: number | null }
+
+function compileTerm(t: UnitTable, term: string): Term {
+  const low = term.toLowerCase();
+  const unitText = low.replace(/^#/, '');
+  return {
+    layerHit: Uint8Array.from(t.layers, (l) => (l.name.toLowerCase().includes(low) ? 1 : 0)),
+    labelHit: Uint8Array.from(t.labels, (name) => (name.toLowerCase().includes(low) ? 1 : 0)),
+    unit: /^\d+$/.test(unitText) ? Number(unitText) : null,
+  };
+}
+
+export function splitTerms(text: string): string[] {
+  return text.trim().split(/\s+/).filter(Boolean);
+}
+
+/** Every row index in table (rank) order. */
+export function allRows(t: UnitTable): Int32Array {
+  return Int32Array.from({ length: t.count }, (_, i) => i);
+}
+
+/**
+ * Row indices (into the table's columns) that pass the filter, in the order of `order` (default: table order).
+ * Sorting once and filtering the sorted order keeps typing in the search fast.
+ */
+export function filterRows(t: UnitTable, f: RosterFilter, order: Int32Array = allRows(t)): Int32Array {
+  const terms = splitTerms(f.text).map((s) => compileTerm(t, s));
+  const layerOk = f.layers.length ? Uint8Array.from(t.layers, (_, i) => (f.layers.includes(i) ? 1 : 0)) : null;
+  const out = new Int32Array(order.length);
+  let n = 0;
+  for (let r = 0; r < order.length; r++) {
+    const i = order[r];
+    if (layerOk && !layerOk[t.layer[i]]) continue;
+    if (f.kind !== 'any' && kindOf(t, i) !== f.kind) continue;
+    const d0 = t.driverOffsets[i];
+    const d1 = t.driverOffsets[i + 1];
+    if (f.driver !== null) {
+      let hit = false;
+      for (let k = d0; k < d1; k++) if (t.driverLabel[k] === f.driver) { hit = true; break; }
+      if (!hit) continue;
+    }
+    let all = true;
+    for (const term of terms) {
+      let hit = term.layerHit[t.layer[i]] === 1 || term.unit === t.unit[i];
+      for (let k = d0; !hit && k < d1; k++) hit = term.labelHit[t.driverLabel[k]] === 1;
+      if (!hit) { all = false; break; }
+    }
+    if (all) out[n++] = i;
+  }
+  return out.slice(0, n);
+}
+
+/** One numeric sort key per row; NaN for "no value" (always sorted last). */
+function sortKeys(t: UnitTable, key: SortKey): Float64Array {
+  const k = new Float64Array(t.count);
+  switch (key) {
+    case 'rank': for (let i = 0; i < t.count; i++) k[i] = t.rank[i]; break;
+    case 'layer': for (let i = 0; i < t.count; i++) k[i] = t.layer[i] * 2 ** 32 + t.unit[i]; break;
+    case 'unit': for (let i = 0; i < t.count; i++) k[i] = t.unit[i]; break;
+    case 'concepts': for (let i = 0; i < t.count; i++) k[i] = t.conceptCount[i] ?? NaN; break;
+    case 'selectivity': for (let i = 0; i < t.count; i++) k[i] = t.selectivity[i] ?? NaN; break;
+    case 'flags': for (let i = 0; i < t.count; i++) k[i] = t.flags[i]; break;
+    case 'drivers': {
+      // Groups units by their largest driver's name (alphabetical), then by that driver's share.
+      const order = t.labels.map((_, i) => i).sort((a, b) => t.labels[a].localeCompare(t.labels[b]));
+      const position = new Int32Array(t.labels.length);
+      order.forEach((label, pos) => { position[label] = pos; });
+      for (let i = 0; i < t.count; i++) {
+        const d = t.driverOffsets[i];
+        k[i] = d === t.driverOffsets[i + 1] ? NaN : position[t.driverLabel[d]] * 2 - t.driverShare[d];
+      }
+      break;
+    }
+    case 'review': k.fill(NaN); break; // review tags arrive with the review tools; until then rank order
+  }
+  return k;
+}
+
+/** A sorted copy of `rows`; ties (and rows without a value) keep rank order. */
+export function sortRows(t: UnitTable, rows: Int32Array, sort: RosterSort): Int32Array {
+  const keys = sortKeys(t, sort.key);
+  const out = rows.slice();
+  out.sort((a, b) => {
+    const ka = keys[a];
+    const kb = keys[b];
+    const na = Number.isNaN(ka);
+    const nb = Number.isNaN(kb);
+    if (na !== nb) return na ? 1 : -1;
+    if (!na && ka !== kb) return ka < kb ? -sort.dir : sort.dir;
+    return t.rank[a] - t.rank[b];
+  });
+  return out;
+}
+
+/** Clicking a column header: same column flips direction, a new column starts in its natural direction. */
+export function toggleSort(current: RosterSort, key: SortKey): RosterSort {
+  return current.key === key ? { key, dir: (current.dir === 1 ? -1 : 1) as SortDir } : { key, dir: firstDirection(key) };
+}
+
+/** Units per kind, for the filter's counts. */
+export function countKinds(t: UnitTable): Record<Exclude<UnitKind, 'any'>, number> {
+  const c = { mixed: 0, single: 0, undriven: 0, dead: 0, dense: 0 };
+  for (let i = 0; i < t.count; i++) c[kindOf(t, i)]++;
+  return c;
+}
+
+/** Row of (layer, unit), or -1. */
+export function findRow(t: UnitTable, layer: string, unit: number): number {
+  const li = t.layers.findIndex((l) => l.name === layer);
+  for (let i = 0; i < t.count; i++) if (t.layer[i] === li && t.unit[i] === unit) return i;
+  return -1;
+}
