@@ -13,6 +13,7 @@ import { fileURLToPath } from 'node:url';
 import { parseArgs } from 'node:util';
 import { defaultDataDir, sampleDataDir } from '../core/api/files.ts';
 import { startServer } from './server/index.ts';
+import { findElectronSqlite, type Runtime } from './main/native.ts';
 
 const require = createRequire(import.meta.url);
 const repo = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
@@ -51,6 +52,15 @@ export function electronBinary(env: NodeJS.ProcessEnv = process.env): { exe: str
   }
   if (process.platform === 'linux' && !env.DISPLAY && !env.WAYLAND_DISPLAY) return { reason: 'there is no display: DISPLAY and WAYLAND_DISPLAY are unset' };
   return { exe };
+}
+
+/** The runtime the installed Electron gives its native addons (its ABI from electron's abi_version file). */
+export function electronRuntime(): Runtime {
+  const dir = path.dirname(require.resolve('electron/package.json'));
+  return {
+    modules: fs.readFileSync(path.join(dir, 'abi_version'), 'utf8').trim(), platform: process.platform, arch: process.arch,
+    electron: (JSON.parse(fs.readFileSync(path.join(dir, 'package.json'), 'utf8')) as { version: string }).version,
+  };
 }
 
 function openBrowser(url: string): void {
@@ -112,7 +122,12 @@ export async function main(argv: string[]): Promise<void> {
   const opts = parseStartArgs(argv);
   if (opts.browser) return browserMode(opts, null);
   const electron = electronBinary();
-  if ('exe' in electron) return desktopMode(electron.exe, opts);
+  if ('exe' in electron) {
+    // Without its own better-sqlite3 the desktop app could only show an error; browser mode works with Node's build.
+    const native = findElectronSqlite(electronRuntime());
+    if ('binding' in native) return desktopMode(electron.exe, opts);
+    return browserMode(opts, `Electron cannot open studies yet (run \`npm run electron:sqlite\` once); falling back to browser mode.`);
+  }
   return browserMode(opts, `Electron is not available here (${electron.reason}); falling back to browser mode.`);
 }
 

@@ -8,7 +8,7 @@ import os from 'node:os';
 import path from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { _electron, type ElectronApplication } from 'playwright-core';
-import { electronBinary } from '../../app/start.ts';
+import { electronBinary, electronRuntime } from '../../app/start.ts';
 import { findElectronSqlite } from '../../app/main/native.ts';
 
 const repo = path.resolve(__dirname, '../..');
@@ -16,12 +16,7 @@ const electron = electronBinary();
 
 function whyNot(): string | null {
   if (!('exe' in electron)) return `SKIPPED: Electron binary not available on this machine (${electron.reason})`;
-  const electronDir = path.join(repo, 'node_modules', 'electron');
-  const runtime = {
-    modules: fs.readFileSync(path.join(electronDir, 'abi_version'), 'utf8').trim(), platform: process.platform, arch: process.arch,
-    electron: (JSON.parse(fs.readFileSync(path.join(electronDir, 'package.json'), 'utf8')) as { version: string }).version,
-  };
-  const native = findElectronSqlite(runtime);
+  const native = findElectronSqlite(electronRuntime());
   if ('problem' in native) return `SKIPPED: Electron's better-sqlite3 build is missing (${native.problem})`;
   return null;
 }

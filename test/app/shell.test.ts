@@ -167,3 +167,14 @@ describe('packaging configuration', () => {
     expect(config.electronVersion).toBe(installed);
   });
 });
+
+describe('electron runtime', () => {
+  it("reads the installed Electron's version and addon ABI", async () => {
+    const { electronRuntime } = await import('../../app/start.ts');
+    const rt = electronRuntime();
+    const dir = path.resolve(__dirname, '../../node_modules/electron');
+    expect(rt.electron).toBe((JSON.parse(fs.readFileSync(path.join(dir, 'package.json'), 'utf8')) as { version: string }).version);
+    expect(rt.modules).toMatch(/^\d+$/);
+    expect(Number(rt.modules)).toBeGreaterThan(Number(process.versions.modules)); // Electron 45 is newer than this Node 20
+  });
+});
