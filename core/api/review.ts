@@ -28,7 +28,7 @@ import {
   STATUSES, STATUS_MEANING, TAG_SUGGESTIONS, MAX_NOTE_LENGTH, MAX_TAGS_PER_UNIT, MAX_TAG_LENGTH, MAX_REVIEWER_LENGTH, MAX_BUNDLE_BYTES,
   tagSchema, noteSchema, statusSchema, reviewerSchema, filterSchema, fieldProblem,
   unitKey, readAnnotation, eventsOfUnit, conflictDetails, listAnnotations, otherFingerprints, studyFingerprints, editUnit, undoLast,
-  resolveStored, matchesFilter, readBundleFile, buildBundle, planImport, applyImport, checkFingerprints, renderNote,
+  resolveStored, filterPredicate, readBundleFile, buildBundle, planImport, applyImport, checkFingerprints, renderNote,
   readPreferences, saveReviewer, gatherReport, renderReportHtml, renderReportCsv, writeFileDurably,
   type Annotation, type ConflictDetail, type Field, type Resolution, type Status, type StoredEvent, type ReviewFilter,
   type FingerprintCheck, type FieldChange, type ImportResult, type UndoResult, type Preferences,
@@ -196,7 +196,7 @@ export function createReviewApi(ctx: ApiContext) {
 
     'review.list': async (r: Req<'review.list'>): Promise<ReviewList> => withStudy(r.study, (db) => {
       const fps = studyFingerprints(db, r.study);
-      const rows = listAnnotations(db, fps).filter((a) => matchesFilter(a, r.filter));
+      const rows = listAnnotations(db, fps).filter(filterPredicate(r.filter));
       const layers = [...new Set(rows.map((a) => a.layer))];
       const layerIndex = new Map(layers.map((l, i) => [l, i]));
       const tagCounts = new Map<string, number>();
@@ -232,7 +232,7 @@ export function createReviewApi(ctx: ApiContext) {
     'review.export': async (r: Req<'review.export'>): Promise<ExportBundleResult> => withStudy(r.study, (db) => {
       const fps = studyFingerprints(db, r.study);
       const run = readRun(db)!;
-      const chosen = listAnnotations(db, fps).filter((a) => matchesFilter(a, r.filter));
+      const chosen = listAnnotations(db, fps).filter(filterPredicate(r.filter));
       const bundle = buildBundle(db, fps, run.probesName, chosen, signer(r.reviewer), (r.filter ?? null) as ReviewFilter | null);
       const text = JSON.stringify(bundle, null, 1) + '\n';
       if (Buffer.byteLength(text) > MAX_BUNDLE_BYTES) {

@@ -30,16 +30,21 @@ export function selectionKey(layer: string, unit: number): string {
   return `${layer}\u0000${unit}`;
 }
 
-export function matchesFilter(a: Annotation, f: ReviewFilter | null | undefined, selected?: ReadonlySet<string>): boolean {
-  if (!f) return true;
-  if (f.tags && !f.tags.some((t) => a.tags.includes(t))) return false;
-  if (f.statuses && !f.statuses.includes(a.status)) return false;
-  if (f.layers && !f.layers.includes(a.layer)) return false;
-  if (f.units && !(selected ?? new Set(f.units.map((u) => selectionKey(u.layer, u.unit)))).has(selectionKey(a.layer, a.unit))) return false;
-  if (f.reviewers && !(a.reviewer !== null && f.reviewers.includes(a.reviewer))) return false;
-  if (f.conflicted !== undefined && (a.conflicts.length > 0) !== f.conflicted) return false;
-  if (f.text && !a.note.toLowerCase().includes(f.text.toLowerCase())) return false;
-  return true;
+/** A test for the filter, with its unit selection indexed once (a selection may name 10^5 units). */
+export function filterPredicate(f: ReviewFilter | null | undefined): (a: Annotation) => boolean {
+  if (!f) return () => true;
+  const selected = f.units ? new Set(f.units.map((u) => selectionKey(u.layer, u.unit))) : null;
+  const text = f.text?.toLowerCase();
+  return (a) => {
+    if (f.tags && !f.tags.some((t) => a.tags.includes(t))) return false;
+    if (f.statuses && !f.statuses.includes(a.status)) return false;
+    if (f.layers && !f.layers.includes(a.layer)) return false;
+    if (selected && !selected.has(selectionKey(a.layer, a.unit))) return false;
+    if (f.reviewers && !(a.reviewer !== null && f.reviewers.includes(a.reviewer))) return false;
+    if (f.conflicted !== undefined && (a.conflicts.length > 0) !== f.conflicted) return false;
+    if (text && !a.note.toLowerCase().includes(text)) return false;
+    return true;
+  };
 }
 
 /** A filter in words, for report headers and CLI messages. */

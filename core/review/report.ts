@@ -10,7 +10,7 @@ import { stringify } from 'csv-stringify/sync';
 import { readLayers, readRun, now } from '../store/study.ts';
 import { requireScores, unitDetail, type UnitDetail } from '../store/queries.ts';
 import { exampleImage, probeLabels, unitDistributions, unitTable, type UnitDistributions } from '../store/views.ts';
-import { describeFilter, hasContent, matchesFilter, selectionKey, type ReviewFilter } from './filter.ts';
+import { describeFilter, filterPredicate, hasContent, selectionKey, type ReviewFilter } from './filter.ts';
 import { renderNote } from './note.ts';
 import {
   conflictDetails, emptyAnnotation, eventsOfUnit, listAnnotations, studyFingerprints,
@@ -59,14 +59,13 @@ export function gatherReport(db: Database.Database, studyFile: string, filter: R
   const fps = studyFingerprints(db, studyFile);
   const layers = new Map(readLayers(db).map((l) => [l.name, l]));
   const annotations = new Map(listAnnotations(db, fps).map((a) => [selectionKey(a.layer, a.unit), a]));
-  const selected = new Set((filter.units ?? []).map((u) => selectionKey(u.layer, u.unit)));
   const candidates = new Map<string, Annotation>();
   for (const [k, a] of annotations) if (hasContent(a)) candidates.set(k, a);
   for (const u of filter.units ?? []) {
     const k = selectionKey(u.layer, u.unit);
     if (!candidates.has(k)) candidates.set(k, annotations.get(k) ?? emptyAnnotation(u.layer, u.unit));
   }
-  const chosen = [...candidates.values()].filter((a) => matchesFilter(a, filter, selected));
+  const chosen = [...candidates.values()].filter(filterPredicate(filter));
   const rankOf = db.prepare(`SELECT s.rank FROM unit_score s JOIN layer l ON l.id = s.layer_id WHERE l.name = ? AND s.unit = ?`).pluck();
   const ranked = chosen.map((a) => ({ a, rank: (rankOf.get(a.layer, a.unit) as number | undefined) ?? Number.MAX_SAFE_INTEGER }))
     .sort((x, y) => x.rank - y.rank || x.a.layer.localeCompare(y.a.layer) || x.a.unit - y.a.unit);
