@@ -245,6 +245,29 @@ describe('bundles for another model or probe set', () => {
   });
 });
 
+describe('browser mode', () => {
+  it('refuses bundle and CSV paths outside the allowed folders, like every other path', async () => {
+    const inside = tempDir('skein-roots-');
+    const outside = tempDir('skein-elsewhere-');
+    const study = bareStudy(path.join(inside, 'a.study'), [{ name: 'hidden', units: 2 }]);
+    fs.writeFileSync(path.join(outside, 'b.json'), '{}');
+    const local: ApiContext = { allowedRoots: [inside] };
+    const confined = createApi(local);
+    for (const [method, body, field] of [
+      ['review.import', { study, file: path.join(outside, 'b.json') }, 'file'],
+      ['review.preview', { study, file: path.join(outside, 'b.json') }, 'file'],
+      ['report.write', { study, out: path.join(inside, 'r.html'), csv: path.join(outside, 'r.csv'), filter: {} }, 'csv'],
+      ['review.export', { study, out: path.join(outside, 'b2.json') }, 'out'],
+    ] as const) {
+      const e = await dispatch(confined, local, method, body).then(() => null, toErrorInfo);
+      expect(e?.code, method).toBe('request');
+      expect(e?.where).toBe(field);
+      expect(e?.message).toMatch(/outside the folders Skein may use in browser mode/);
+    }
+    expect(fs.readdirSync(outside)).toEqual(['b.json']);
+  });
+});
+
 describe('the strict JSON reader', () => {
   // JSON.parse is the reference for valid JSON (ECMA-262, JSON.parse; RFC 8259 grammar).
   it('reads every valid JSON text as JSON.parse does', () => {

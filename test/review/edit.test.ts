@@ -135,6 +135,34 @@ describe('editing a unit', () => {
   });
 });
 
+describe('resolving stored conflicts', () => {
+  it('keeps a conflict on the unit until someone decides it, with a value of their own if they like', async () => {
+    const dir = tempDir('skein-resolve-');
+    const a = bareStudy(path.join(dir, 'a.study'), [{ name: 'hidden', units: 2 }]);
+    const b = bareStudy(path.join(dir, 'b.study'), [{ name: 'hidden', units: 2 }]);
+    await edit(a, 0, 'ana', { note: 'ana: two hues' });
+    await edit(b, 0, 'ben', { note: 'ben: one hue', status: 'doubtful' });
+    const bundle = path.join(dir, 'b.json');
+    await call('review.export', { study: b, out: bundle });
+    await call('review.import', { study: a, file: bundle });
+    const open = await get(a, 0);
+    expect(open.annotation).toMatchObject({ note: 'ana: two hues', status: 'doubtful', conflicts: ['note'] });
+    expect(open.conflicts).toEqual([{
+      layer: 'hidden', unit: 0, field: 'note', base: '',
+      mine: { value: 'ana: two hues', author: 'ana', at: expect.any(String) },
+      theirs: { value: 'ben: one hue', author: 'ben', at: expect.any(String) },
+    }]);
+    const nothing = await failure(call('review.resolve', { study: a, reviewer: 'ana', resolutions: [{ layer: 'hidden', unit: 0, field: 'status', keep: 'mine' }] }));
+    expect(nothing.message).toMatch(/no unresolved conflict on the status of hidden unit 0/);
+    const bad = await failure(call('review.resolve', { study: a, reviewer: 'ana', resolutions: [{ layer: 'hidden', unit: 0, field: 'note', keep: { value: true } }] }));
+    expect(bad.message).toMatch(/not valid: the note must be text, got boolean/);
+    const r = await call<{ annotations: Annotation[] }>('review.resolve', { study: a, reviewer: 'ana', resolutions: [{ layer: 'hidden', unit: 0, field: 'note', keep: { value: 'one or two hues: look at 20 examples' } }] });
+    expect(r.annotations[0]).toMatchObject({ note: 'one or two hues: look at 20 examples', conflicts: [], reviewer: 'ana' });
+    const resolution = (await get(a, 0)).history[0];
+    expect(resolution.parents).toHaveLength(2);
+  });
+});
+
 describe('preferences', () => {
   it('stores the reviewer name atomically in the data folder, keeping other keys, and survives a broken file', async () => {
     const home = tempDir('skein-home-');
