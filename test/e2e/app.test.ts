@@ -1,0 +1,231 @@
+/**
+ * The app as a new user meets it, in real Chromium against browser mode (real server, real onnxruntime, real SQLite):
+ * open the demo → scan → ranked roster → open the top unit → charts drawn → filter by a label → keyboard → reload.
+ * Saves a screenshot of every screen under test-output/screenshots/ (light and dark).
+ * Assertions wait for states, never for durations.
+ */
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { build } from 'vite';
+import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { startServer, type RunningServer } from '../../app/server/index.ts';
+import { sampleDataDir } from '../../core/api/files.ts';
+
+const repo = fileURLToPath(new URL('../../', import.meta.url));
+const shots = path.join(repo, 'test-output', 'screenshots');
+const CHROMIUM = '/usr/bin/chromium';
+const demoBuilt = fs.existsSync(path.join(sampleDataDir(), 'tiles-model.onnx')) && fs.existsSync(path.join(sampleDataDir(), 'tiles', 'manifest.json'));
+/** Until the demo is built: a folder holding tiles-model.onnx and tiles/ made by `npm run sample-data -- --out DIR`, typed in by path. */
+const stand_in = demoBuilt ? null : process.env.SKEIN_E2E_DEMO_DIR ?? null;
+const CHROMIUM_ARGS = ['--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];
+
+describe('Skein in Chromium (browser mode)', () => {
+  let tmp: string;
+  let server: RunningServer;
+  let context: BrowserContext;
+  let page: Page;
+  const problems: string[] = [];
+
+  const shot = async (name: string) => {
+    await page.screenshot({ path: path.join(shots, `${name}.png`), fullPage: false });
+  };
+
+  /** Sorts the roster by concept count, largest first, whatever the current order. */
+  const mostMixedFirst = async () => {
+    const header = page.locator('[data-sort="concepts"]');
+    while ((await header.getAttribute('aria-sort')) !== 'descending') await header.click();
+  };
+
+  beforeAll(async () => {
+    tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'skein-e2e-'));
+    fs.mkdirSync(shots, { recursive: true });
+    const rendererDir = path.join(tmp, 'renderer');
+    await build({ configFile: path.join(repo, 'app/renderer/vite.config.ts'), logLevel: 'error', build: { outDir: rendererDir, emptyOutDir: true } });
+    const dataDir = path.join(tmp, 'home');
+    fs.mkdirSync(dataDir);
+    if (!demoBuilt && !stand_in) throw new Error(`The demo is not built (${sampleDataDir()}); run npm run sample-data.`);
+    server = await startServer({ port: 0, roots: [sampleDataDir(), dataDir, ...(stand_in ? [stand_in] : [])], rendererDir, dataDir });
+    const profile = path.join(tmp, 'chromium-profile');
+    context = await chromium.launchPersistentContext(profile, {
+      executablePath: CHROMIUM, headless: true, args: CHROMIUM_ARGS, viewport: { width: 1360, height: 860 }, colorScheme: 'light',
+    });
+    page = context.pages()[0] ?? (await context.newPage());
+    // Any blocked script/eval (CSP), uncaught error or console error fails the run at the end.
+    await page.addInitScript(() => {
+      document.addEventListener('securitypolicyviolation', (e) => console.error(`CSP violation: ${e.violatedDirective} ${e.blockedURI}`));
+    });
+    page.on('console', (m) => { if (m.type() === 'error') problems.push(m.text()); });
+    page.on('pageerror', (e) => problems.push(`page error: ${e.message}`));
+  });
+
+  afterAll(async () => {
+    await context?.close();
+    await server?.close();
+    if (tmp) fs.rmSync(tmp, { recursive: true, force: true });
+  });
+
+  it('opens on the desk, and a mistyped model path names the file at fault', async () => {
+    await page.goto(server.url);
+    await page.getByRole('heading', { name: /more than one thing/ }).waitFor();
+    const missing = path.join(sampleDataDir(), 'no-such-model.onnx');
+    await page.locator('[data-field="model"] input').fill(missing);
+    const note = page.locator('[data-field="model"] [role="alert"]');
+    await note.waitFor();
+    expect(await note.textContent()).toContain(missing);
+    await shot('desk-light');
+    await page.locator('[data-field="model"] input').fill('');
+  });
+
+  it('opens the demo and scans it, showing progress until the roster appears', async () => {
+    if (stand_in) {
+      await page.locator('[data-field="model"] input').fill(path.join(stand_in, 'tiles-model.onnx'));
+      await page.locator('[data-field="probes"] input').fill(path.join(stand_in, 'tiles'));
+      await page.locator('[data-field="study"] input').fill(path.join(tmp, 'home', 'demo.study'));
+      await page.locator('[data-field="study"][data-status="ok"]').waitFor();
+      await page.locator('[data-field="probes"][data-status="ok"]').waitFor();
+      await page.getByRole('button', { name: 'Choose layers…' }).click();
+    } else {
+      await page.locator('[data-open-demo]').click();
+    }
+    await page.getByRole('heading', { name: 'Capture' }).waitFor();
+    await page.locator('[data-tensors] tbody tr').first().waitFor();
+    // Defaults are preselected: at least one tensor ticked before the user touches anything.
+    expect(await page.locator('[data-tensors] input[type="checkbox"]:checked').count()).toBeGreaterThan(0);
+    await shot('capture-light');
+    await page.locator('[data-start-scan]').click();
+    await page.locator('[data-job-state]').waitFor();
+    await page.getByRole('heading', { name: 'Roster' }).waitFor({ timeout: 240_000 });
+    await page.locator('[data-row="0"]').waitFor();
+  });
+
+  it('lists units ranked, and sorts by a column', async () => {
+    const total = Number(await page.locator('[data-row-count]').getAttribute('data-row-count'));
+    expect(total).toBeGreaterThan(10);
+    const top = await page.locator('[data-row="0"]').getAttribute('data-unit');
+    await shot('roster-light');
+    await page.locator('[data-sort="concepts"]').click();
+    const values = (await page.locator('.body .row .concepts .num').allTextContents()).map(Number).filter((v) => !Number.isNaN(v));
+    expect(values.length).toBeGreaterThan(5);
+    for (let i = 1; i < values.length; i++) expect(values[i - 1]).toBeGreaterThanOrEqual(values[i]);
+    await page.locator('[data-sort="rank"]').click();
+    expect(await page.locator('[data-row="0"]').getAttribute('data-unit')).toBe(top);
+  });
+
+  it('opens the top unit with its charts drawn by plotly', async () => {
+    await page.locator('[data-row="0"] .layer').click();
+    const unit = (await page.locator('[data-row="0"]').getAttribute('data-unit'))!;
+    await page.keyboard.press('Enter');
+    await page.locator('[data-unit-title]').waitFor();
+    expect(await page.locator('[data-unit-title]').textContent()).toBe(unit.replace(/:(\d+)$/, ' · $1'));
+    await page.locator('[data-plot="spread"] path.js-line').first().waitFor({ state: 'attached' });
+    expect(await page.locator('[data-plot="spread"] path.js-line').count()).toBeGreaterThan(1);
+    await page.locator('[data-panel="kin"] table, [data-panel="kin"] p').first().waitFor();
+    expect(await page.locator('[data-caution]').count()).toBeGreaterThan(0);
+    await shot('profile-light');
+  });
+
+  it('opens the most mixed unit: mixture bars, thumbnails and their peak boxes', async () => {
+    await page.keyboard.press('Escape');
+    await page.getByRole('heading', { name: 'Roster' }).waitFor();
+    await mostMixedFirst();
+    await page.locator('[data-row="0"] .layer').dblclick();
+    await page.locator('[data-unit-title]').waitFor();
+    await page.locator('[data-plot="mixture"] .bars path').first().waitFor({ state: 'attached' });
+    expect(await page.locator('[data-plot="mixture"] .bars path').count()).toBeGreaterThan(1);
+    await page.locator('[data-panel="top-probes"] img').first().waitFor(); // the demo's probes are images
+    await shot('profile-mixed-light');
+  });
+
+  it('marks where a conv unit peaked on each thumbnail', async () => {
+    await page.keyboard.press('Escape');
+    await page.locator('[data-search]').fill('conv');
+    await page.locator('[data-row="0"] .layer').dblclick();
+    await page.locator('[data-unit-title][data-layer-kind="conv"]').waitFor();
+    await page.locator('[data-panel="top-probes"] img').first().waitFor();
+    // One box per thumbnail, each one grid cell of the layer's H×W map.
+    expect(await page.locator('[data-panel="top-probes"] .box').count()).toBe(await page.locator('[data-panel="top-probes"] figure.image').count());
+    await shot('profile-conv-light');
+    await page.keyboard.press('Escape');
+    await page.locator('[data-search]').fill('');
+    await mostMixedFirst();
+    await page.locator('[data-row="0"] .layer').dblclick();
+    await page.locator('[data-plot="mixture"] .bars path').first().waitFor({ state: 'attached' });
+    await page.locator('[data-theme-toggle]').click();
+    expect(await page.evaluate(() => document.documentElement.dataset.theme)).toBe('dark');
+    await page.locator('[data-plot="spread"] path.js-line').first().waitFor({ state: 'attached' });
+    await shot('profile-mixed-dark');
+  });
+
+  it('filters the roster to the units one label drives', async () => {
+    const label = (await page.locator('[data-panel="drivers"] tbody .chip').first().textContent())!.trim();
+    await page.keyboard.press('Escape');
+    await page.getByRole('heading', { name: 'Roster' }).waitFor();
+    await page.locator('[data-kind="any"]').click();
+    await page.locator('[data-driver-filter]').fill(label);
+    await page.locator('[data-driver-filter]').blur();
+    await page.locator(`.body .row .chip.active`).first().waitFor();
+    const rows = await page.locator('.body .row').count();
+    expect(rows).toBeGreaterThan(0);
+    expect(await page.locator('.body .row:has(.chip.active)').count()).toBe(rows);
+    await shot('roster-filtered-dark');
+  });
+
+  it('moves with j/k, searches with / and opens with Enter', async () => {
+    await page.locator('.filters .link').click(); // clear the filters
+    await page.locator('[data-row="2"]').waitFor();
+    await page.locator('h1').first().click();
+    await page.keyboard.press('g');
+    await page.keyboard.press('j');
+    await page.keyboard.press('j');
+    await page.keyboard.press('k');
+    await expect.poll(() => page.locator('.body .row.cursor').getAttribute('data-row')).toBe('1');
+    await page.keyboard.press('/');
+    expect(await page.evaluate(() => document.activeElement?.hasAttribute('data-search'))).toBe(true);
+    const unit = (await page.locator('[data-row="1"]').getAttribute('data-unit'))!;
+    const layerName = unit.slice(0, unit.lastIndexOf(':'));
+    await page.keyboard.type(layerName);
+    await page.keyboard.press('Escape');
+    expect(await page.evaluate(() => document.activeElement?.hasAttribute('data-search'))).toBe(false);
+    await page.locator('[data-row="0"]').waitFor();
+    const shown = await page.locator('.body .row').evaluateAll((els) => els.map((e) => e.getAttribute('data-unit')!));
+    expect(shown.every((u) => u.includes(layerName))).toBe(true);
+    await page.keyboard.press('j');
+    const target = (await page.locator('.body .row.cursor').getAttribute('data-unit'))!;
+    await page.keyboard.press('Enter');
+    await page.locator('[data-unit-title]').waitFor();
+    expect(await page.locator('[data-unit-title]').textContent()).toBe(target.replace(/:(\d+)$/, ' · $1'));
+  });
+
+  it('keeps the study and the screen across a reload', async () => {
+    const title = await page.locator('[data-unit-title]').textContent();
+    await page.reload();
+    await page.locator('[data-unit-title]').waitFor();
+    expect(await page.locator('[data-unit-title]').textContent()).toBe(title);
+    expect(await page.locator('[data-study-name]').textContent()).toBe('demo.study');
+    await page.keyboard.press('u');
+    await page.locator('[data-row="0"]').waitFor();
+  });
+
+  it('shows the layer overview and one label’s reach', async () => {
+    await page.keyboard.press('l');
+    await page.getByRole('heading', { name: 'Strata' }).waitFor();
+    await page.locator('[data-plot="layer-kinds"] .bars path').first().waitFor({ state: 'attached' });
+    await shot('strata-dark');
+    await page.locator('[data-theme-toggle]').click();
+    await shot('strata-light');
+    await page.keyboard.press('c');
+    await page.locator('[data-label-list] tbody tr').first().waitFor();
+    await shot('reach-list-light');
+    await page.locator('[data-label-list] tbody tr').first().click();
+    await page.locator('[data-driver-of]').waitFor();
+    await page.locator('[data-plot="auroc-histogram"] .bars path').first().waitFor({ state: 'attached' });
+    await shot('reach-light');
+  });
+
+  it('ran without a console error or a blocked script (plotly under script-src self)', () => {
+    expect(problems.slice(0, 20)).toEqual([]);
+  });
+});
