@@ -11,6 +11,7 @@ import { extract, selectLayers, DEFAULT_BATCH } from '../../core/extract/scan.ts
 import { poolBatch } from '../../core/extract/pool.ts';
 import { openNpy } from '../../core/probes/index.ts';
 import type { BenchModel } from '../lib/models.ts';
+import { exposePooled } from '../lib/pool-in-graph.ts';
 import { writeProbeSet } from '../lib/probes.ts';
 import { median, timed } from '../lib/measure.ts';
 
@@ -25,6 +26,15 @@ export interface ScanFigure {
   rawSeconds: number[];
   captureSeconds: number[];
   scanSeconds: number[];
+  /** CPU seconds of this process (all threads), same runs. */
+  rawCpu: number[];
+  captureCpu: number[];
+  scanCpu: number[];
+  /** Conv models only: capture with the pooling done inside the graph (the proposal in bench/lib/pool-in-graph.ts). */
+  graphPoolSeconds: number[] | null;
+  graphPoolCpu: number[] | null;
+  graphPoolRate: number | null;
+  graphPoolRatio: number | null;
   rawRate: number;
   captureRate: number;
   scanRate: number;
@@ -82,6 +92,90 @@ async function captureOnly(modelPath: string, inputs: ReturnType<typeof loadInpu
   }
 }
 
+interface GraphPooled {
+  pooled: ReturnType<typeof exposePooled>;
+  convs: Map<string, number>;
+  units: Map<string, number>;
+  /** The first batches as core/extract/pool.ts pools the full maps. */
+  expected: Map<string, { values: Float32Array; argmax: Uint32Array | null }>[];
+}
+
+function feedRows(inputs: ReturnType<typeof loadInputs>, off: number, count: number) {
+  const per = inputs.rowShape.reduce((a, b) => a * b, 1);
+  return { x: new ort.Tensor('float32', inputs.rows.subarray(off * per, (off + count) * per), [count, ...inputs.rowShape]) };
+}
+
+/** Builds the graph-pooled model and the reference values of its first batches (not timed). */
+async function prepareGraphPooled(modelPath: string, inputs: ReturnType<typeof loadInputs>, batch: number, checkBatches: number): Promise<GraphPooled> {
+  const selected = selectLayers(readModel(modelPath));
+  const original = fs.readFileSync(modelPath);
+  const session = await createSession(exposeTensors(original, selected.map((t) => t.name)));
+  const convs = new Map<string, number>();
+  const units = new Map<string, number>();
+  const dense: string[] = [];
+  const expected: GraphPooled['expected'] = [];
+  try {
+    for (let b = 0; b < checkBatches && b * batch < inputs.count; b++) {
+      const count = Math.min(batch, inputs.count - b * batch);
+      const out = await session.run(feedRows(inputs, b * batch, count), selected.map((t) => t.name));
+      const m = new Map<string, { values: Float32Array; argmax: Uint32Array | null }>();
+      for (const t of selected) {
+        const dims = out[t.name].dims.slice(1).map(Number);
+        const layout = unitLayout(dims);
+        if (b === 0) {
+          units.set(t.name, layout.units);
+          if (layout.kind === 'conv') convs.set(t.name, dims[0]);
+          else dense.push(t.name);
+        }
+        m.set(t.name, poolBatch(out[t.name].data as Float32Array, count, layout.kind, dims, 'max'));
+      }
+      expected.push(m);
+    }
+  } finally {
+    await session.release();
+  }
+  return { pooled: exposePooled(original, convs, dense), convs, units, expected };
+}
+
+/**
+ * Capture with conv maps pooled inside the graph: onnxruntime returns [B, C] values and locations, turned
+ * unit-major as the scan stores them. The first batches are compared with core/extract/pool.ts on the full maps:
+ * the numbers must not change.
+ */
+async function captureGraphPooled(g: GraphPooled, inputs: ReturnType<typeof loadInputs>, batch: number): Promise<number> {
+  const names = [...g.pooled.outputs.values()].flatMap((o) => (o.argmax ? [o.values, o.argmax] : [o.values]));
+  const session = await createSession(g.pooled.bytes);
+  try {
+    let checksum = 0;
+    for (let off = 0, b = 0; off < inputs.count; off += batch, b++) {
+      const count = Math.min(batch, inputs.count - off);
+      const out = await session.run(feedRows(inputs, off, count), names);
+      for (const [name, o] of g.pooled.outputs) {
+        const units = g.units.get(name)!;
+        const values = poolBatch(out[o.values].data as Float32Array, count, 'dense', [units], 'max').values;
+        let argmax: Uint32Array | null = null;
+        if (o.argmax) {
+          const raw = out[o.argmax].data as BigInt64Array;
+          argmax = new Uint32Array(units * count);
+          for (let s = 0; s < count; s++) for (let u = 0; u < units; u++) argmax[u * count + s] = Number(raw[s * units + u]);
+        }
+        const want = g.expected[b]?.get(name);
+        if (want) {
+          for (let i = 0; i < values.length; i++) {
+            if (values[i] !== want.values[i] || (argmax && want.argmax && argmax[i] !== want.argmax[i])) {
+              throw new Error(`pooling in the graph changed ${name} at batch ${b}, index ${i}: ${values[i]}@${argmax?.[i]} vs ${want.values[i]}@${want.argmax?.[i]}`);
+            }
+          }
+        }
+        checksum += values[0];
+      }
+    }
+    return checksum;
+  } finally {
+    await session.release();
+  }
+}
+
 export async function scanFigure(outDir: string, model: BenchModel, probeCount: number, reps: number, log: (s: string) => void): Promise<ScanFigure> {
   fs.mkdirSync(outDir, { recursive: true });
   const modelPath = path.join(outDir, `${model.name}.onnx`);
@@ -94,19 +188,37 @@ export async function scanFigure(outDir: string, model: BenchModel, probeCount: 
   const rawSeconds: number[] = [];
   const captureSeconds: number[] = [];
   const scanSeconds: number[] = [];
+  const rawCpu: number[] = [];
+  const captureCpu: number[] = [];
+  const scanCpu: number[] = [];
+  const hasConv = selectLayers(readModel(modelPath)).some((t) => (t.dims?.length ?? 0) === 4);
+  const graphPoolSeconds: number[] | null = hasConv ? [] : null;
+  const graphPoolCpu: number[] | null = hasConv ? [] : null;
+  const graphPooled = hasConv ? await prepareGraphPooled(modelPath, inputs, batch, 8) : null;
   let layers: ScanFigure['layers'] = [];
   let studyBytes = 0;
   // warm-up: one small pass so the first measured run does not pay for loading the native addon
   await rawInference(model.bytes, { ...inputs, count: Math.min(inputs.count, 4 * batch) }, batch, null);
   for (let rep = 0; rep < reps; rep++) {
-    rawSeconds.push((await timed(() => rawInference(model.bytes, inputs, batch, null))).seconds);
-    captureSeconds.push((await timed(() => captureOnly(modelPath, inputs, batch))).seconds);
+    const raw = await timed(() => rawInference(model.bytes, inputs, batch, null));
+    rawSeconds.push(raw.seconds);
+    rawCpu.push(raw.cpuSeconds);
+    const capture = await timed(() => captureOnly(modelPath, inputs, batch));
+    captureSeconds.push(capture.seconds);
+    captureCpu.push(capture.cpuSeconds);
     for (const f of [study, `${study}-wal`, `${study}-shm`]) fs.rmSync(f, { force: true });
     const scan = await timed(() => extract({ model: modelPath, probes: probesDir, study, batch }));
     scanSeconds.push(scan.seconds);
+    scanCpu.push(scan.cpuSeconds);
+    if (graphPoolSeconds && graphPoolCpu && graphPooled) {
+      const g = await timed(() => captureGraphPooled(graphPooled, inputs, batch));
+      graphPoolSeconds.push(g.seconds);
+      graphPoolCpu.push(g.cpuSeconds);
+    }
     layers = scan.value.layers;
     studyBytes = fs.statSync(study).size + (fs.existsSync(`${study}-wal`) ? fs.statSync(`${study}-wal`).size : 0);
-    log(`  ${model.name} rep ${rep + 1}/${reps}: raw ${rawSeconds[rep].toFixed(2)} s, capture ${captureSeconds[rep].toFixed(2)} s, scan ${scanSeconds[rep].toFixed(2)} s`);
+    log(`  ${model.name} rep ${rep + 1}/${reps}: raw ${rawSeconds[rep].toFixed(2)} s, capture ${captureSeconds[rep].toFixed(2)} s, scan ${scanSeconds[rep].toFixed(2)} s` +
+      (graphPoolSeconds ? `, capture pooled in the graph ${graphPoolSeconds[rep].toFixed(2)} s` : ''));
   }
   for (const f of [study, `${study}-wal`, `${study}-shm`]) fs.rmSync(f, { force: true });
   const units = layers.reduce((s, l) => s + l.units, 0);
@@ -115,7 +227,10 @@ export async function scanFigure(outDir: string, model: BenchModel, probeCount: 
   const scanRate = probeCount / median(scanSeconds);
   return {
     model: model.name, description: model.description, probes: probeCount, batch, layers, units,
-    activationBytes: units * probeCount * 4, rawSeconds, captureSeconds, scanSeconds,
+    activationBytes: units * probeCount * 4, rawSeconds, captureSeconds, scanSeconds, rawCpu, captureCpu, scanCpu,
     rawRate, captureRate, scanRate, ratio: scanRate / rawRate, captureRatio: captureRate / rawRate, studyBytes,
+    graphPoolSeconds, graphPoolCpu,
+    graphPoolRate: graphPoolSeconds ? probeCount / median(graphPoolSeconds) : null,
+    graphPoolRatio: graphPoolSeconds ? probeCount / median(graphPoolSeconds) / rawRate : null,
   };
 }
