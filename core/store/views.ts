@@ -101,15 +101,19 @@ export interface UnitDistributions {
   layer: string;
   unit: number;
   probes: number;
-  /** bins + 1 edges over [min, max] of the unit's activations. */
+  /** The unit's lowest activation (a ReLU unit's 0): probes at exactly this value are counted apart, in atFloor. */
+  floor: number;
+  /** bins + 1 edges over [floor, max]; the bins count only probes above the floor. */
   edges: number[];
   all: number[];
-  labels: { label: string; n: number; counts: number[]; auroc: number; isDriver: boolean }[];
+  allAtFloor: number;
+  labels: { label: string; n: number; counts: number[]; atFloor: number; auroc: number; isDriver: boolean }[];
 }
 
 /**
  * Histograms of one unit's activations over all probes and over the probes of each chosen label (default: its drivers,
- * then the labels with the highest AUROC, up to maxLabels). Reads the unit's N activations once.
+ * then the labels with the highest AUROC, up to maxLabels). Reads the unit's N activations once. Probes at the unit's
+ * floor are counted apart: for a ReLU unit they are often most probes, and one bar that tall would flatten the rest.
  */
 export function unitDistributions(db: Database.Database, layerName: string, unit: number, opts: { bins?: number; labels?: string[]; maxLabels?: number; file?: string } = {}): UnitDistributions {
   requireScores(db, opts.file);
@@ -143,25 +147,31 @@ export function unitDistributions(db: Database.Database, layerName: string, unit
   }
   if (!Number.isFinite(min)) { min = 0; max = 0; }
   const width = (max - min) / bins;
+  const FLOOR = -1;
   const binIndex = new Int32Array(values.length);
   const all = new Array(bins).fill(0);
-  for (let i = 0; i < values.length; i++) all[(binIndex[i] = binOf(values[i], min, width, bins))]++;
+  let allAtFloor = 0;
+  for (let i = 0; i < values.length; i++) {
+    if (values[i] === min) { binIndex[i] = FLOOR; allAtFloor++; } else all[(binIndex[i] = binOf(values[i], min, width, bins))]++;
+  }
   const slot = new Map(chosen.map((id, i) => [id, i]));
   const counts = chosen.map(() => new Array(bins).fill(0));
   const n = chosen.map(() => 0);
+  const atFloor = chosen.map(() => 0);
   if (chosen.length) {
     const rows = db.prepare(`SELECT probe, label FROM probe_label WHERE label IN (${chosen.map(() => '?').join(',')})`).raw().iterate(...chosen) as IterableIterator<[number, number]>;
     for (const [probe, label] of rows) {
       const s = slot.get(label)!;
-      counts[s][binIndex[probe]]++;
+      if (binIndex[probe] === FLOOR) atFloor[s]++;
+      else counts[s][binIndex[probe]]++;
       n[s]++;
     }
   }
   return {
-    layer: layer.name, unit, probes: run.probeCount,
+    layer: layer.name, unit, probes: run.probeCount, floor: min,
     edges: Array.from({ length: bins + 1 }, (_, i) => (i === bins ? max : min + i * width)),
-    all,
-    labels: chosen.map((id, i) => ({ label: names[id], n: n[i], counts: counts[i], auroc: auroc.get(id) ?? NaN, isDriver: driverIds.includes(id) })),
+    all, allAtFloor,
+    labels: chosen.map((id, i) => ({ label: names[id], n: n[i], counts: counts[i], atFloor: atFloor[i], auroc: auroc.get(id) ?? NaN, isDriver: driverIds.includes(id) })),
   };
 }
 

@@ -73,10 +73,16 @@ describe('screen requests on the planted study', () => {
   it('unit.distributions counts every probe once overall and once per label', async () => {
     const d = await api['unit.distributions']({ study, layer: 'planted', unit: unitOf('blue+square'), bins: 20 });
     expect(d.edges).toHaveLength(21);
-    expect(d.all.reduce((a, b) => a + b, 0)).toBe(4000);
+    expect(d.all.reduce((a, b) => a + b, 0) + d.allAtFloor).toBe(4000);
+    // blue+square = relu(blue + square + 0.001·noise): probes with neither sit near 0 (construction); the lowest is the floor.
+    expect(d.floor).toBeGreaterThanOrEqual(0);
+    expect(d.floor).toBeLessThan(0.0015);
+    expect(d.allAtFloor).toBeGreaterThanOrEqual(1);
     // Drivers first, as constructed: blue and square.
     expect(new Set(d.labels.slice(0, 2).map((l) => l.label))).toEqual(new Set(['blue', 'square']));
-    for (const l of d.labels) expect(l.counts.reduce((a, b) => a + b, 0)).toBe(l.n);
+    for (const l of d.labels) expect(l.counts.reduce((a, b) => a + b, 0) + l.atFloor).toBe(l.n);
+    // Every blue probe is above the floor (its activation is at least 1 by construction).
+    expect(d.labels.find((l) => l.label === 'blue')!.atFloor).toBe(0);
     // Every probe has exactly one hue (fixture construction): the hue labels' n sum to at most N.
     const named = await api['unit.distributions']({ study, layer: 'planted', unit: 0, labels: ['red', 'orange', 'blue', 'green', 'violet', 'grey'] });
     expect(named.labels.reduce((s, l) => s + l.n, 0)).toBe(4000);

@@ -4,9 +4,10 @@
  */
 export type Theme = 'light' | 'dark';
 
+// Twelve hues spread round the colour wheel at one calm saturation; consecutive entries are far apart.
 const PALETTE: Record<Theme, string[]> = {
-  light: ['#3f6f8f', '#a0603c', '#5b7f3a', '#7a4f86', '#9c7a2e', '#2f7f77', '#8c4656', '#55608a', '#6d7a2a', '#3f86a8', '#a05a82', '#5f6e5c'],
-  dark: ['#86b4d4', '#e09a72', '#9cc47a', '#bb98c8', '#d7b767', '#74c2b8', '#d48a9a', '#9aa6d6', '#b5c06a', '#82c0de', '#dc9cc0', '#a7b6a4'],
+  light: ['#3b6ea5', '#c0622f', '#4f8a3a', '#8a4fa0', '#b58a1c', '#2a8a86', '#b04a64', '#5b5fb8', '#7f8a2a', '#2f8fc0', '#a0522d', '#6b7a8f'],
+  dark: ['#7fa8d8', '#e89a6a', '#8cc47a', '#c29ad4', '#e0bf5a', '#6cc4bf', '#e08ca0', '#9fa2e8', '#bcc46a', '#7cc3e8', '#d8946c', '#a5b2c4'],
 };
 
 /** FNV-1a 32-bit hash (Fowler, Noll, Vo; public-domain reference), enough to spread label names over the palette. */
@@ -19,9 +20,11 @@ export function fnv1a(text: string): number {
   return h >>> 0;
 }
 
-export function labelColor(name: string, theme: Theme): string {
+/** A label's colour: by its place in the study's label list when known (distinct for up to 12 labels), else by a hash of its name. */
+export function labelColor(name: string, theme: Theme, order: readonly string[] = []): string {
   const p = PALETTE[theme];
-  return p[fnv1a(name) % p.length];
+  const i = order.indexOf(name);
+  return p[(i >= 0 ? i : fnv1a(name)) % p.length];
 }
 
 /** Colours of the unit kinds (mixed, single, undriven, dead, dense) in charts and badges. */

@@ -26,6 +26,7 @@ export function offsetToReveal(index: number, scrollTop: number, viewportHeight:
   const top = index * rowHeight;
   const bottom = top + rowHeight;
   if (top < scrollTop) return top;
-  if (bottom > scrollTop + viewportHeight) return Math.max(0, bottom - viewportHeight);
+  // Below: align its bottom, unless the row is taller than the viewport (then its top).
+  if (bottom > scrollTop + viewportHeight) return Math.max(0, Math.min(top, bottom - viewportHeight));
   return scrollTop;
 }

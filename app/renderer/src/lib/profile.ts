@@ -26,10 +26,13 @@ export function shares(counts: number[], n: number): number[] {
   return counts.map((c) => (n > 0 ? c / n : 0));
 }
 
-/** Plotly traces: all probes (dashed) and one step line per label, each as a share of its own probes. */
+/**
+ * Plotly traces: all probes (dotted) and one step line per label, each as a share of all its own probes, so what sits
+ * at the floor (counted apart, not drawn) is the part that is missing from each line.
+ */
 export function histogramTraces(d: UnitDistributions, colorOf: (label: string) => string, allColor: string): Record<string, unknown>[] {
   const x = binCentres(d.edges);
-  const total = d.all.reduce((a, b) => a + b, 0);
+  const total = d.all.reduce((a, b) => a + b, 0) + d.allAtFloor;
   const step = { type: 'scatter', mode: 'lines', x, line: { shape: 'hvh', width: 1.6 } };
   return [
     { ...step, name: `all probes (${total})`, y: shares(d.all, total), line: { ...step.line, color: allColor, dash: 'dot' }, hovertemplate: 'all: %{y:.1%} at %{x:.3f}<extra></extra>' },
