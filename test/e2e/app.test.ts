@@ -13,6 +13,9 @@ import { build } from 'vite';
 import { chromium, type BrowserContext, type Page } from 'playwright-core';
 import { startServer, type RunningServer } from '../../app/server/index.ts';
 import { sampleDataDir } from '../../core/api/files.ts';
+import { runScan } from '../../core/api/index.ts';
+import { buildModel } from '../../core/model/writer.ts';
+import { rng, writeProbeSet } from '../support/fixtures.ts';
 
 const repo = fileURLToPath(new URL('../../', import.meta.url));
 const shots = path.join(repo, 'test-output', 'screenshots');
@@ -20,6 +23,34 @@ const CHROMIUM = '/usr/bin/chromium';
 const demoBuilt = fs.existsSync(path.join(sampleDataDir(), 'tiles-model.onnx')) && fs.existsSync(path.join(sampleDataDir(), 'tiles', 'manifest.json'));
 /** Until the demo is built: a folder holding tiles-model.onnx and tiles/ made by `npm run sample-data -- --out DIR`, typed in by path. */
 const stand_in = demoBuilt ? null : process.env.SKEIN_E2E_DEMO_DIR ?? null;
+/**
+ * A study of 10^5 units (x[4] → MatMul → Relu, random weights) on 120 probes: enough rows to show the roster's
+ * windowing; the scores themselves are not examined.
+ */
+async function wideStudy(dir: string): Promise<string> {
+  const units = 100_000;
+  const width = 4;
+  const n = 120;
+  const r = rng(3);
+  const model = path.join(dir, 'wide.onnx');
+  fs.writeFileSync(model, buildModel({
+    name: 'wide', inputs: [{ name: 'x', elemType: 'float32', dims: ['batch', width] }], outputs: [{ name: 'h', elemType: 'float32', dims: ['batch', units] }],
+    initializers: [{ name: 'W', dims: [width, units], data: new Float32Array(width * units).map(() => r() * 2 - 1) }],
+    nodes: [{ op: 'MatMul', inputs: ['x', 'W'], outputs: ['pre'] }, { op: 'Relu', inputs: ['pre'], outputs: ['h'] }],
+  }));
+  const rows = new Float32Array(n * width);
+  const labels: string[][] = [];
+  for (let p = 0; p < n; p++) {
+    labels.push([['north', 'south', 'east', 'west'][p % 4]]);
+    rows[p * width + (p % 4)] = 1;
+    rows[p * width + ((p + 1) % 4)] = r() * 0.3;
+  }
+  const probes = writeProbeSet({ dir: path.join(dir, 'wide-probes'), inputName: 'x', rows, rowShape: [width], labels });
+  const study = path.join(dir, 'wide.study');
+  await runScan({ model, probes, study, layers: ['h'] });
+  return study;
+}
+
 const CHROMIUM_ARGS = ['--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];
 
 describe('Skein in Chromium (browser mode)', () => {
@@ -47,7 +78,9 @@ describe('Skein in Chromium (browser mode)', () => {
     const dataDir = path.join(tmp, 'home');
     fs.mkdirSync(dataDir);
     if (!demoBuilt && !stand_in) throw new Error(`The demo is not built (${sampleDataDir()}); run npm run sample-data.`);
-    server = await startServer({ port: 0, roots: [sampleDataDir(), dataDir, ...(stand_in ? [stand_in] : [])], rendererDir, dataDir });
+    fs.mkdirSync(path.join(tmp, 'wide'));
+    wide = await wideStudy(path.join(tmp, 'wide'));
+    server = await startServer({ port: 0, roots: [sampleDataDir(), dataDir, path.join(tmp, 'wide'), ...(stand_in ? [stand_in] : [])], rendererDir, dataDir });
     const profile = path.join(tmp, 'chromium-profile');
     context = await chromium.launchPersistentContext(profile, {
       executablePath: CHROMIUM, headless: true, args: CHROMIUM_ARGS, viewport: { width: 1360, height: 860 }, colorScheme: 'light',
@@ -60,6 +93,8 @@ describe('Skein in Chromium (browser mode)', () => {
     page.on('console', (m) => { if (m.type() === 'error') problems.push(m.text()); });
     page.on('pageerror', (e) => problems.push(`page error: ${e.message}`));
   });
+
+  let wide: string;
 
   afterAll(async () => {
     await context?.close();
@@ -223,6 +258,27 @@ describe('Skein in Chromium (browser mode)', () => {
     await page.locator('[data-driver-of]').waitFor();
     await page.locator('[data-plot="auroc-histogram"] .bars path').first().waitFor({ state: 'attached' });
     await shot('reach-light');
+  });
+
+  it('keeps 10^5 units in a window of a few dozen rows, and reaches the last one by keyboard', async () => {
+    await page.goto(`${server.origin}/#/roster?study=${encodeURIComponent(wide)}`);
+    await page.locator('[data-row="0"]').waitFor({ timeout: 120_000 });
+    expect(await page.locator('[role="grid"]').getAttribute('aria-rowcount')).toBe('100000');
+    const rendered = await page.locator('.body .row').count();
+    expect(rendered).toBeGreaterThan(10);
+    expect(rendered).toBeLessThan(120);
+    await page.locator('h1').first().click();
+    await page.keyboard.press('G');
+    await page.locator('[data-row="99999"].cursor').waitFor();
+    expect(await page.locator('.body .row').count()).toBeLessThan(120);
+    await page.keyboard.press('k');
+    await page.locator('[data-row="99998"].cursor').waitFor();
+    await shot('roster-100k-end-light');
+    await page.keyboard.press('/');
+    await page.keyboard.type('#99999');
+    await page.keyboard.press('Enter');
+    await expect.poll(() => page.locator('.body .row').count()).toBe(1);
+    expect(await page.locator('[data-row="0"]').getAttribute('data-unit')).toBe('h:99999');
   });
 
   it('ran without a console error or a blocked script (plotly under script-src self)', () => {

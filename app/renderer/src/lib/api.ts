@@ -9,9 +9,13 @@ export type Response<M extends Method> = Awaited<ReturnType<Api[M]>>;
 
 type Envelope = { ok: true; value: unknown } | { ok: false; error: ErrorInfo };
 
+/** What the desktop shell asks the page to open (menus, native dialogs, drag-and-drop, command line). */
+export interface OpenItem { kind: 'model' | 'probes' | 'study'; path: string }
+
 interface SkeinBridge {
   call(method: string, body: unknown): Promise<Envelope>;
   platform: string;
+  onOpen?(listener: (item: OpenItem) => void): () => void;
 }
 
 declare global {
@@ -65,6 +69,11 @@ async function send(method: string, body: unknown): Promise<Envelope> {
       : 'Reload the page; if it keeps happening, restart Skein.';
     return { ok: false, error: { code: 'io', message: `Skein answered ${res.status} ${res.statusText}. ${hint}` } };
   }
+}
+
+/** Subscribes to the desktop shell's "open this" events; a no-op in browser mode. Returns the unsubscribe. */
+export function onShellOpen(listener: (item: OpenItem) => void): () => void {
+  return inElectron() && typeof window.skein!.onOpen === 'function' ? window.skein!.onOpen(listener) : () => {};
 }
 
 /** Calls one core request; resolves with its value or rejects with an ApiError. */
