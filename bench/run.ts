@@ -15,7 +15,7 @@ import { mlp, cnn } from './lib/models.ts';
 import { benchDir, median, seconds } from './lib/measure.ts';
 import { scanFigure, type ScanFigure } from './figures/scan.ts';
 import { storageFigure, type StorageFigure } from './figures/storage.ts';
-import { scoringFigure, type ScoringFigure } from './figures/scoring.ts';
+import { agreementAtScale, scoringFigure, type ScoringFigure } from './figures/scoring.ts';
 import { scaleAxis, scoreJobPoint, type AxisResult, type JobPoint } from './figures/memory.ts';
 import { uiFigure, type UiFigure } from './figures/ui.ts';
 import type { SyntheticSpec } from './lib/synthetic.ts';
@@ -35,6 +35,7 @@ interface Sizes {
   scoringReps: number;
   scoringJobReps: number;
   naiveUnits: number;
+  naiveUnitsAtScale: number;
   memory: SyntheticSpec;
   scaleBase: SyntheticSpec;
   scale: { probes: number[]; units: number[]; labels: number[] };
@@ -46,7 +47,7 @@ interface Sizes {
 const FULL: Sizes = {
   scanProbes: 20_000, scanReps: 5, mlpWidths: [784, 2048, 2048, 10], cnn: [28, 32, 64, 128],
   storageUnits: 4096, storageProbes: 20_000, storageReps: 3,
-  scoring: { probes: 20_000, units: 4096, labels: 30, seed: 5 }, scoringReps: 3, scoringJobReps: 3, naiveUnits: 16,
+  scoring: { probes: 20_000, units: 4096, labels: 30, seed: 5 }, scoringReps: 3, scoringJobReps: 3, naiveUnits: 16, naiveUnitsAtScale: 2,
   memory: { probes: 200_000, units: 4096, labels: 30, seed: 5 },
   scaleBase: { probes: 20_000, units: 1024, labels: 30, seed: 5 },
   scale: { probes: [20_000, 60_000, 200_000], units: [1024, 2048, 4096], labels: [10, 30, 100] },
@@ -56,7 +57,7 @@ const FULL: Sizes = {
 const QUICK: Sizes = {
   scanProbes: 512, scanReps: 1, mlpWidths: [784, 256, 256, 10], cnn: [28, 8, 16, 32],
   storageUnits: 256, storageProbes: 4096, storageReps: 1,
-  scoring: { probes: 2000, units: 256, labels: 30, seed: 5 }, scoringReps: 1, scoringJobReps: 1, naiveUnits: 2,
+  scoring: { probes: 2000, units: 256, labels: 30, seed: 5 }, scoringReps: 1, scoringJobReps: 1, naiveUnits: 2, naiveUnitsAtScale: 1,
   memory: { probes: 20_000, units: 128, labels: 30, seed: 5 },
   scaleBase: { probes: 2000, units: 128, labels: 10, seed: 5 },
   scale: { probes: [2000, 4000, 8000], units: [128, 256, 512], labels: [10, 20, 40] },
@@ -130,25 +131,29 @@ async function main(): Promise<void> {
       figs.push(f);
       say(`sizes: ${f.description}; ${f.probes} probes, batch ${f.batch}; layers ${f.layers.map((l) => `${l.name}[${l.units} ${l.kind}]`).join(' ')} = ${f.units} units, ${mb(f.activationBytes)} of activations, study ${mb(f.studyBytes)}`);
       say(`raw ${k(f.rawRate)} probes/s | capture only (no store) ${k(f.captureRate)} probes/s (${f2(f.captureRatio)}×) | scan ${k(f.scanRate)} probes/s`);
+      if (f.pipelinedRatio !== null) say(`proposal, the scan with its chunk commits on a worker thread (same statements and transactions): ${k(f.pipelinedRate!)} probes/s (${f2(f.pipelinedRatio)}×)`);
       if (f.graphPoolRatio !== null) say(`proposal, conv maps pooled inside the graph (capture only, numbers checked equal): ${k(f.graphPoolRate!)} probes/s (${f2(f.graphPoolRatio)}×)`);
-      say(`CPU seconds (this process, all threads; steadier than wall time on a shared machine): raw ${f2(median(f.rawCpu))}, capture ${f2(median(f.captureCpu))}, scan ${f2(median(f.scanCpu))}${f.graphPoolCpu ? `, pooled in the graph ${f2(median(f.graphPoolCpu))}` : ''} → raw/scan ${f2(median(f.rawCpu) / median(f.scanCpu))}`);
+      say(`CPU seconds (this process, all threads; steadier than wall time on a shared machine): raw ${f2(median(f.rawCpu))}, capture ${f2(median(f.captureCpu))}, scan ${f2(median(f.scanCpu))}${f.graphPoolCpu ? `, pooled in the graph ${f2(median(f.graphPoolCpu))}` : ''}${f.pipelinedCpu ? `, commits on a worker ${f2(median(f.pipelinedCpu))} (its worker's CPU included)` : ''} → raw/scan ${f2(median(f.rawCpu) / median(f.scanCpu))}`);
       say(`ratio scan/raw: ${f2(f.ratio)}× (target ≥ 0.80: ${verdict(f.ratio >= 0.8)})`);
       const tag = f.model.startsWith('mlp') ? 'mlp' : 'cnn';
       results.push({ name: `scan_vs_raw_${tag}`, value: f.ratio, unit: 'ratio', target: '>= 0.8', note: `${f.description}, ${f.probes} probes, wall time` });
       results.push({ name: `scan_vs_raw_cpu_${tag}`, value: median(f.rawCpu) / median(f.scanCpu), unit: 'ratio', target: null, note: 'raw CPU seconds / scan CPU seconds' });
       results.push({ name: `capture_vs_raw_${tag}`, value: f.captureRatio, unit: 'ratio', target: null, note: 'layers exposed and pooled, nothing stored' });
+      if (f.pipelinedRatio !== null) results.push({ name: `scan_commits_on_worker_vs_raw_${tag}`, value: f.pipelinedRatio, unit: 'ratio', target: null, note: 'proposal: chunk commits on a worker thread' });
       if (f.graphPoolRatio !== null) results.push({ name: `capture_pooled_in_graph_vs_raw_${tag}`, value: f.graphPoolRatio, unit: 'ratio', target: null, note: 'proposal: ReduceMax/ArgMax in the graph' });
     }
     const worst = figs.reduce((a, b) => (a.ratio <= b.ratio ? a : b));
     results.unshift({ name: 'scan_vs_raw', value: worst.ratio, unit: 'ratio', target: '>= 0.8', note: `lower of the two models (${worst.model})` });
-    md.push('### Scan overhead', '', '| model | probes | units captured | raw probes/s | capture-only probes/s | capture pooled in graph (proposal) | scan probes/s | scan/raw (wall) | scan/raw (CPU s) | target |', '|---|---|---|---|---|---|---|---|---|---|');
+    md.push('### Scan overhead', '', '| model | probes | units captured | raw probes/s | capture-only probes/s | scan probes/s | scan/raw (wall) | scan/raw (CPU s) | target | proposal measured |', '|---|---|---|---|---|---|---|---|---|---|');
     for (const f of figs) {
-      md.push(`| ${f.description} | ${f.probes} | ${f.units} (${mb(f.activationBytes)}) | ${k(f.rawRate)} | ${k(f.captureRate)} (${f2(f.captureRatio)}×) | ${f.graphPoolRatio === null ? '—' : `${k(f.graphPoolRate!)} (${f2(f.graphPoolRatio)}×)`} | ${k(f.scanRate)} | **${f2(f.ratio)}×** | ${f2(median(f.rawCpu) / median(f.scanCpu))}× | ≥ 0.8 ${verdict(f.ratio >= 0.8)} |`);
+      const proposal = f.graphPoolRatio !== null ? `capture with conv maps pooled in the graph: ${k(f.graphPoolRate!)} probes/s (${f2(f.graphPoolRatio)}×)`
+        : f.pipelinedRatio !== null ? `scan with chunk commits on a worker thread: ${k(f.pipelinedRate!)} probes/s (${f2(f.pipelinedRatio)}×)` : '—';
+      md.push(`| ${f.description} | ${f.probes} | ${f.units} (${mb(f.activationBytes)}) | ${k(f.rawRate)} | ${k(f.captureRate)} (${f2(f.captureRatio)}×) | ${k(f.scanRate)} | **${f2(f.ratio)}×** | ${f2(median(f.rawCpu) / median(f.scanCpu))}× | ≥ 0.8 ${verdict(f.ratio >= 0.8)} | ${proposal} |`);
     }
     md.push('', 'Runs, wall seconds (CPU seconds):');
     for (const f of figs) {
       const runs = (w: number[], c: number[]) => w.map((x, i) => `${f2(x)} (${f2(c[i])})`).join(', ');
-      md.push(`- ${f.model}: raw ${runs(f.rawSeconds, f.rawCpu)}; capture ${runs(f.captureSeconds, f.captureCpu)}; scan ${runs(f.scanSeconds, f.scanCpu)}${f.graphPoolSeconds && f.graphPoolCpu ? `; pooled in graph ${runs(f.graphPoolSeconds, f.graphPoolCpu)}` : ''}`);
+      md.push(`- ${f.model}: raw ${runs(f.rawSeconds, f.rawCpu)}; capture ${runs(f.captureSeconds, f.captureCpu)}; scan ${runs(f.scanSeconds, f.scanCpu)}${f.graphPoolSeconds && f.graphPoolCpu ? `; pooled in graph ${runs(f.graphPoolSeconds, f.graphPoolCpu)}` : ''}${f.pipelinedSeconds && f.pipelinedCpu ? `; commits on a worker ${runs(f.pipelinedSeconds, f.pipelinedCpu)}` : ''}`);
     }
     md.push('');
   }
@@ -160,16 +165,18 @@ async function main(): Promise<void> {
     storage = await storageFigure(path.join(outDir, 'storage'), sizes.storageUnits, sizes.storageProbes, sizes.storageReps, log);
     const s = storage;
     say(`sizes: ${s.units} units × ${s.probes} probes = ${mb(s.bytes)}, chunks of ${s.chunkSize} probes (${s.chunkSize * 4}-byte blobs)`);
-    say(`raw ${f2(s.rawMbPerSecond)} MB/s | raw with the study's durability (WAL, FULL, commit per chunk) ${f2(s.rawChunkedMbPerSecond)} MB/s | study ${f2(s.studyMbPerSecond)} MB/s`);
+    say(`raw ${f2(s.rawMbPerSecond)} MB/s | raw with the study's durability (WAL, FULL, commit per chunk) ${f2(s.rawChunkedMbPerSecond)} MB/s | study ${f2(s.studyMbPerSecond)} MB/s | proposal, study with synchronous=NORMAL ${f2(s.normalMbPerSecond)} MB/s`);
     say(`ratio study/raw: ${f2(s.ratio)}× (no target set); size ${f2(s.studyMbPerMillion)} MB per million activations (raw table ${f2(s.rawMbPerMillion)}, float32 alone 4.00)`);
     results.push({ name: 'write_vs_raw', value: s.ratio, unit: 'ratio', target: null, note: `${mb(s.bytes)}: study ${f2(s.studyMbPerSecond)} MB/s, raw ${f2(s.rawMbPerSecond)} MB/s` });
     results.push({ name: 'write_mb_per_s', value: s.studyMbPerSecond, unit: 'MB/s', target: null });
+    results.push({ name: 'write_normal_sync_vs_raw', value: s.normalMbPerSecond / s.rawMbPerSecond, unit: 'ratio', target: null, note: 'proposal: synchronous=NORMAL' });
     results.push({ name: 'study_mb_per_million_activations', value: s.studyMbPerMillion, unit: 'MB', target: null, note: 'float32 alone is 4.00' });
     md.push('### Storage', '', '| writer | MB/s | file MB per million activations |', '|---|---|---|',
       `| raw: rowid table, one transaction (SQLite defaults) | ${f2(s.rawMbPerSecond)} | ${f2(s.rawMbPerMillion)} |`,
       `| raw with the study's durability (WAL, synchronous=FULL, commit per chunk) | ${f2(s.rawChunkedMbPerSecond)} | |`,
       `| study write path (core/store schema, the scan's statements) | ${f2(s.studyMbPerSecond)} | ${f2(s.studyMbPerMillion)} |`,
-      '', `${s.units} units × ${s.probes} probes = ${mb(s.bytes)}; study/raw **${f2(s.ratio)}×**. Runs (s): raw ${s.rawSeconds.map(f2).join('/')}, raw-durable ${s.rawChunkedSeconds.map(f2).join('/')}, study ${s.studySeconds.map(f2).join('/')}.`, '');
+      `| proposal: the same with synchronous=NORMAL (WAL) | ${f2(s.normalMbPerSecond)} | |`,
+      '', `${s.units} units × ${s.probes} probes = ${mb(s.bytes)}; study/raw **${f2(s.ratio)}×**. Runs (s): raw ${s.rawSeconds.map(f2).join('/')}, raw-durable ${s.rawChunkedSeconds.map(f2).join('/')}, study ${s.studySeconds.map(f2).join('/')}, study NORMAL ${s.normalSeconds.map(f2).join('/')}.`, '');
   }
 
   const jobCache = new Map<string, JobPoint>();
@@ -211,9 +218,12 @@ async function main(): Promise<void> {
     say(`sizes: ${sp.probes} probes × ${sp.units} units × ${sp.labels} labels = ${(p.activationBytes / 1e9).toFixed(2)} GB of float32 (study file ${(p.studyBytes / 1e9).toFixed(2)} GB)`);
     say(`peak RSS ${p.peakRssMb.toFixed(0)} MiB (before scoring ${p.baselineRssMb.toFixed(0)} MiB), scoring ${f2(p.scoreSeconds)} s`);
     say(`ratio peak RSS / activation bytes: ${f2((p.peakRssMb * 2 ** 20) / p.activationBytes)}; target ≤ 1.5 GB: ${verdict(p.peakRssMb * 2 ** 20 <= 1.5e9)}`);
+    const at = agreementAtScale(sp, sizes.naiveUnitsAtScale);
+    say(`numbers at this N: first ${at.units} units against the straightforward computation: max |ΔAUROC| ${at.maxAurocDiff.toExponential(1)}, max relative Δmean ${at.maxMeanRelDiff.toExponential(1)}, hit mismatches ${at.topHitMismatches}, max relative Δp ${at.maxPRelDiff.toExponential(1)} over ${at.pCompared} p-values (bounds met)`);
     results.push({ name: 'peak_rss_mb', value: p.peakRssMb, unit: 'MiB', target: '<= 1430 (1.5 GB)', note: `scoreStudy on ${sp.probes} × ${sp.units} (${(p.activationBytes / 1e9).toFixed(2)} GB float32)` });
     results.push({ name: 'memory_scoring_seconds', value: p.scoreSeconds, unit: 's', target: null, note: `${sp.probes} × ${sp.units} × ${sp.labels}` });
-    md.push('### Memory', '', `scoreStudy on ${sp.probes} probes × ${sp.units} units × ${sp.labels} labels (${(p.activationBytes / 1e9).toFixed(2)} GB float32, study file ${(p.studyBytes / 1e9).toFixed(2)} GB): peak RSS **${p.peakRssMb.toFixed(0)} MiB** (${p.baselineRssMb.toFixed(0)} MiB before scoring starts), ${f2(p.scoreSeconds)} s. Target ≤ 1.5 GB: ${verdict(p.peakRssMb * 2 ** 20 <= 1.5e9)}.`, '');
+    md.push('### Memory', '', `scoreStudy on ${sp.probes} probes × ${sp.units} units × ${sp.labels} labels (${(p.activationBytes / 1e9).toFixed(2)} GB float32, study file ${(p.studyBytes / 1e9).toFixed(2)} GB): peak RSS **${p.peakRssMb.toFixed(0)} MiB** (${p.baselineRssMb.toFixed(0)} MiB before scoring starts), ${f2(p.scoreSeconds)} s. Target ≤ 1.5 GB: ${verdict(p.peakRssMb * 2 ** 20 <= 1.5e9)}.`, '',
+      `Numbers at this N: the first ${at.units} units against the straightforward computation: max |ΔAUROC| ${at.maxAurocDiff.toExponential(1)}, max relative Δmean ${at.maxMeanRelDiff.toExponential(1)}, top-set hit mismatches ${at.topHitMismatches}, max relative Δp ${at.maxPRelDiff.toExponential(1)} over ${at.pCompared} p-values.`, '');
   }
 
   if (only.has('scale')) {
@@ -223,7 +233,7 @@ async function main(): Promise<void> {
       const r = await scaleAxis(path.join(outDir, 'studies'), sizes.scaleBase, axis, sizes.scale[axis], jobCache, log);
       axes.push(r);
       say(`${axis}: ${r.points.map((p) => `${p.spec[axis]} → ${f2(p.scoreSeconds)} s, ${p.peakRssMb.toFixed(0)} MiB`).join(' | ')}`);
-      say(`  time ∝ ${axis}^${f2(r.timeSlope)} (${r.timeGrowth}); memory above the process floor ∝ ${axis}^${f2(r.memorySlope)} (${r.memoryGrowth})`);
+      say(`  time ∝ ${axis}^${f2(r.timeSlope)} (${r.timeGrowth}); as a line: ${f2(r.fixedSeconds)} s + ${(r.secondsPerStep * 1000).toPrecision(3)} ms per ${axis.replace(/s$/, '')}; memory above the process floor ∝ ${axis}^${f2(r.memorySlope)} (${r.memoryGrowth})`);
       results.push({ name: `scale_time_exponent_${axis}`, value: r.timeSlope, unit: 'log-log slope', target: null });
       results.push({ name: `scale_memory_exponent_${axis}`, value: r.memorySlope, unit: 'log-log slope', target: null });
     }
@@ -231,8 +241,8 @@ async function main(): Promise<void> {
     md.push('### Scale', '', `Base point ${b.probes} probes × ${b.units} units × ${b.labels} labels; one axis varied at a time; scoreStudy in a child process (one run per point).`, '',
       '| axis | size | probes × units × labels | seconds | peak RSS MiB | RSS before scoring MiB |', '|---|---|---|---|---|---|');
     for (const r of axes) for (const p of r.points) md.push(`| ${r.axis} | ${p.spec[r.axis]} | ${p.spec.probes} × ${p.spec.units} × ${p.spec.labels} | ${f2(p.scoreSeconds)} | ${p.peakRssMb.toFixed(0)} | ${p.baselineRssMb.toFixed(0)} |`);
-    md.push('', '| axis | time grows as | memory (above the floor) grows as |', '|---|---|---|');
-    for (const r of axes) md.push(`| ${r.axis} | ${r.axis}^${f2(r.timeSlope)}: ${r.timeGrowth} | ${r.axis}^${f2(r.memorySlope)}: ${r.memoryGrowth} |`);
+    md.push('', '| axis | time grows as (log-log slope) | time as a line | memory above the floor grows as |', '|---|---|---|---|');
+    for (const r of axes) md.push(`| ${r.axis} | ${r.axis}^${f2(r.timeSlope)}: ${r.timeGrowth} | ${f2(r.fixedSeconds)} s + ${(r.secondsPerStep * 1000).toPrecision(3)} ms per ${r.axis.replace(/s$/, '')} | ${r.axis}^${f2(r.memorySlope)}: ${r.memoryGrowth} |`);
     md.push('');
   }
 

@@ -56,6 +56,23 @@ export interface AxisResult {
   memorySlope: number;
   timeGrowth: string;
   memoryGrowth: string;
+  /** Least-squares line through the times: seconds ≈ fixedSeconds + secondsPerStep · size. */
+  fixedSeconds: number;
+  secondsPerStep: number;
+}
+
+/** Ordinary least squares y ≈ a + b·x. */
+export function linearFit(xs: number[], ys: number[]): { a: number; b: number } {
+  const mx = xs.reduce((s, x) => s + x, 0) / xs.length;
+  const my = ys.reduce((s, y) => s + y, 0) / ys.length;
+  let num = 0;
+  let den = 0;
+  for (let i = 0; i < xs.length; i++) {
+    num += (xs[i] - mx) * (ys[i] - my);
+    den += (xs[i] - mx) ** 2;
+  }
+  const b = num / den;
+  return { a: my - b * mx, b };
 }
 
 /** Least-squares slope of log y on log x: y ∝ x^slope. */
@@ -101,5 +118,6 @@ export async function scaleAxis(dir: string, base: SyntheticSpec, axis: Axis, si
   const timeSlope = logLogSlope(sizes, points.map((p) => p.scoreSeconds));
   // memory above what the process holds before scoring starts
   const memorySlope = logLogSlope(sizes, points.map((p) => Math.max(1, p.peakRssMb - p.baselineRssMb)));
-  return { axis, points, timeSlope, memorySlope, timeGrowth: growthWords(timeSlope), memoryGrowth: growthWords(memorySlope) };
+  const line = linearFit(sizes, points.map((p) => p.scoreSeconds));
+  return { axis, points, timeSlope, memorySlope, timeGrowth: growthWords(timeSlope), memoryGrowth: growthWords(memorySlope), fixedSeconds: line.a, secondsPerStep: line.b };
 }

@@ -151,3 +151,22 @@ export function scoringFigure(spec: SyntheticSpec, reps: number, sampleUnits: nu
   };
   void perUnitKernel;
 }
+
+/**
+ * The same comparison at a larger N (smaller p-values, longer hypergeometric tails): the first `units` units of
+ * `spec`, kernel against the straightforward computation; throws when a bound is exceeded.
+ */
+export function agreementAtScale(spec: SyntheticSpec, units: number): Agreement {
+  const source = new SyntheticActivations({ ...spec, units });
+  const labels = source.labels;
+  const membership = labelMembership(labels);
+  const scratch = createScratch(labels);
+  const values = new Float32Array(spec.probes);
+  const agreement = emptyAgreement();
+  for (let u = 0; u < units; u++) {
+    source.fill(u, values);
+    compareWithNaive(scoreUnitPartial(u, values, labels, defaultScoreOptions, scratch), naiveUnit(values, membership, defaultScoreOptions), agreement);
+  }
+  checkAgreement(agreement, `scoring ${spec.probes}×${units}×${spec.labels}`);
+  return agreement;
+}
