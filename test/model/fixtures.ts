@@ -8,17 +8,10 @@ export function tempDir(): string {
   return mkdtempSync(join(tmpdir(), 'skein-model-'));
 }
 
-/** mulberry32 PRNG (from memory): deterministic weights without fixture files. */
-export function seededRandom(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+/** Deterministic weights without fixture files: the seeded generator the demo build uses. */
+import { mulberry32 as seededRandom } from '../../sample-data/lib/prng.ts';
+
+export { seededRandom };
 
 export function randomArray(rand: () => number, n: number, scale = 1): Float32Array {
   const out = new Float32Array(n);

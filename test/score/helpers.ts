@@ -1,17 +1,10 @@
 /** Seeded data for the score tests (the data are ours; check values name their own sources). */
 import type { LabelMatrix } from '../../core/score/types.ts';
 
-/** mulberry32 PRNG (T. Ettinger's public-domain generator, from memory): uniform in [0, 1). */
-export function seededRandom(seed: number): () => number {
-  let state = seed >>> 0;
-  return () => {
-    state = (state + 0x6d2b79f5) >>> 0;
-    let t = state;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+/** The seeded generator the demo build uses (mulberry32). */
+import { mulberry32 as seededRandom } from '../../sample-data/lib/prng.ts';
+
+export { seededRandom };
 
 /** Standard normal by Box–Muller (Box & Muller 1958). */
 export function seededNormal(random: () => number): () => number {

@@ -9,17 +9,10 @@ export function tempDir(prefix = 'skein-test-'): string {
   return fs.mkdtempSync(path.join(os.tmpdir(), prefix));
 }
 
-/** Seeded PRNG (mulberry32, common practice, no source) so fixtures are the same on every run. */
-export function rng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+/** Seeded PRNG so fixtures are the same on every run: the generator the demo build uses (mulberry32). */
+import { mulberry32 as rng } from '../../sample-data/lib/prng.ts';
+
+export { rng };
 
 export interface ProbeSetSpec {
   dir: string;
