@@ -8,14 +8,13 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { build } from 'vite';
 import { chromium, type BrowserContext, type Page } from 'playwright-core';
 import { startServer, type RunningServer } from '../../app/server/index.ts';
 import { sampleDataDir } from '../../core/api/files.ts';
 import { runScan } from '../../core/api/index.ts';
-import { buildModel } from '../../core/model/writer.ts';
-import { rng, writeProbeSet } from '../support/fixtures.ts';
+import { wideFixture, slowFixture, type Fixture } from './fixtures.ts';
 
 const repo = fileURLToPath(new URL('../../', import.meta.url));
 const shots = path.join(repo, 'test-output', 'screenshots');
@@ -23,34 +22,6 @@ const CHROMIUM = '/usr/bin/chromium';
 const demoBuilt = fs.existsSync(path.join(sampleDataDir(), 'tiles-model.onnx')) && fs.existsSync(path.join(sampleDataDir(), 'tiles', 'manifest.json'));
 /** Until the demo is built: a folder holding tiles-model.onnx and tiles/ made by `npm run sample-data -- --out DIR`, typed in by path. */
 const stand_in = demoBuilt ? null : process.env.SKEIN_E2E_DEMO_DIR ?? null;
-/**
- * A study of 10^5 units (x[4] → MatMul → Relu, random weights) on 120 probes: enough rows to show the roster's
- * windowing; the scores themselves are not examined.
- */
-async function wideStudy(dir: string): Promise<string> {
-  const units = 100_000;
-  const width = 4;
-  const n = 120;
-  const r = rng(3);
-  const model = path.join(dir, 'wide.onnx');
-  fs.writeFileSync(model, buildModel({
-    name: 'wide', inputs: [{ name: 'x', elemType: 'float32', dims: ['batch', width] }], outputs: [{ name: 'h', elemType: 'float32', dims: ['batch', units] }],
-    initializers: [{ name: 'W', dims: [width, units], data: new Float32Array(width * units).map(() => r() * 2 - 1) }],
-    nodes: [{ op: 'MatMul', inputs: ['x', 'W'], outputs: ['pre'] }, { op: 'Relu', inputs: ['pre'], outputs: ['h'] }],
-  }));
-  const rows = new Float32Array(n * width);
-  const labels: string[][] = [];
-  for (let p = 0; p < n; p++) {
-    labels.push([['north', 'south', 'east', 'west'][p % 4]]);
-    rows[p * width + (p % 4)] = 1;
-    rows[p * width + ((p + 1) % 4)] = r() * 0.3;
-  }
-  const probes = writeProbeSet({ dir: path.join(dir, 'wide-probes'), inputName: 'x', rows, rowShape: [width], labels });
-  const study = path.join(dir, 'wide.study');
-  await runScan({ model, probes, study, layers: ['h'] });
-  return study;
-}
-
 const CHROMIUM_ARGS = ['--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];
 
 describe('Skein in Chromium (browser mode)', () => {
@@ -59,6 +30,8 @@ describe('Skein in Chromium (browser mode)', () => {
   let context: BrowserContext;
   let page: Page;
   const problems: string[] = [];
+  let wide: Fixture;
+  let slow: Fixture;
 
   const shot = async (name: string) => {
     await page.screenshot({ path: path.join(shots, `${name}.png`), fullPage: false });
@@ -73,14 +46,16 @@ describe('Skein in Chromium (browser mode)', () => {
   beforeAll(async () => {
     tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'skein-e2e-'));
     fs.mkdirSync(shots, { recursive: true });
+    for (const f of fs.readdirSync(shots)) if (f.startsWith('failed-')) fs.rmSync(path.join(shots, f));
     const rendererDir = path.join(tmp, 'renderer');
     await build({ configFile: path.join(repo, 'app/renderer/vite.config.ts'), logLevel: 'error', build: { outDir: rendererDir, emptyOutDir: true } });
     const dataDir = path.join(tmp, 'home');
     fs.mkdirSync(dataDir);
     if (!demoBuilt && !stand_in) throw new Error(`The demo is not built (${sampleDataDir()}); run npm run sample-data.`);
-    fs.mkdirSync(path.join(tmp, 'wide'));
-    wide = await wideStudy(path.join(tmp, 'wide'));
-    server = await startServer({ port: 0, roots: [sampleDataDir(), dataDir, path.join(tmp, 'wide'), ...(stand_in ? [stand_in] : [])], rendererDir, dataDir });
+    wide = wideFixture(path.join(tmp, 'wide'));
+    await runScan({ ...wide, layers: ['h'] }); // the roster's 10^5 rows; its scan is not what is tested
+    slow = slowFixture(path.join(tmp, 'slow'));
+    server = await startServer({ port: 0, roots: [sampleDataDir(), dataDir, path.join(tmp, 'wide'), path.join(tmp, 'slow'), ...(stand_in ? [stand_in] : [])], rendererDir, dataDir });
     const profile = path.join(tmp, 'chromium-profile');
     context = await chromium.launchPersistentContext(profile, {
       executablePath: CHROMIUM, headless: true, args: CHROMIUM_ARGS, viewport: { width: 1360, height: 860 }, colorScheme: 'light',
@@ -94,7 +69,10 @@ describe('Skein in Chromium (browser mode)', () => {
     page.on('pageerror', (e) => problems.push(`page error: ${e.message}`));
   });
 
-  let wide: string;
+  // A failed step leaves a picture of the page behind, for whoever reads the CI log.
+  afterEach(async (ctx) => {
+    if (ctx.task.result?.state === 'fail' && page) await shot(`failed-${ctx.task.name.slice(0, 40).replace(/[^a-z0-9]+/gi, '-')}`).catch(() => {});
+  });
 
   afterAll(async () => {
     await context?.close();
@@ -112,6 +90,21 @@ describe('Skein in Chromium (browser mode)', () => {
     expect(await note.textContent()).toContain(missing);
     await shot('desk-light');
     await page.locator('[data-field="model"] input').fill('');
+  });
+
+  it('chooses a probe set in the file browser, confined to the folders Skein may use', async () => {
+    await page.locator('[data-field="probes"] button', { hasText: 'Browse' }).click();
+    const browser = page.locator('[data-file-browser]');
+    await browser.waitFor();
+    await browser.locator('select').selectOption(sampleDataDir());
+    const tiles = browser.locator('[data-entry]', { hasText: 'tiles' }).filter({ hasText: 'probe set' });
+    await tiles.waitFor();
+    await shot('file-browser-light');
+    await tiles.getByRole('button', { name: 'Choose' }).click();
+    await page.locator('[data-field="probes"][data-status="ok"]').waitFor();
+    expect(await page.locator('[data-field="probes"] input').inputValue()).toBe(path.join(sampleDataDir(), 'tiles'));
+    expect(await page.locator('[data-field="probes"]').textContent()).toContain('1,200 probes');
+    await page.locator('[data-field="probes"] input').fill('');
   });
 
   it('opens the demo and scans it, showing progress until the roster appears', async () => {
@@ -260,10 +253,30 @@ describe('Skein in Chromium (browser mode)', () => {
     await shot('reach-light');
   });
 
+  it('stops a scan on cancel and resumes it from the saved chunks, showing progress', async () => {
+    await page.goto(`${server.origin}/#/capture?${new URLSearchParams({ study: slow.study, model: slow.model, probes: slow.probes })}`);
+    await page.locator('[data-tensor="deep"] input').check();
+    await page.locator('[data-tensor="shallow"] input').uncheck();
+    // One probe per batch and two per chunk: the scan saves a chunk every second probe and checks for a stop after each.
+    await page.locator('[data-batch]').fill('1');
+    await page.locator('[data-chunk-size]').fill('2');
+    await page.locator('[data-start-scan]').click();
+    // Three probes done means the first chunk is saved; stop then, early, so the stop lands while the scan runs.
+    await page.waitForFunction(() => Number(document.querySelector('[role="progressbar"]')?.getAttribute('aria-valuenow')) >= 3, undefined, { timeout: 120_000 });
+    await page.locator('[data-cancel-scan]').click();
+    await page.locator('[data-job-state="cancelled"]').waitFor({ timeout: 120_000 });
+    expect(await page.locator('[data-job-state]').textContent()).toContain('Scan again to continue');
+    await shot('capture-cancelled-light');
+    await page.locator('[data-start-scan]').click();
+    await page.locator('[data-job-note]', { hasText: /Resuming: \d+ of 200 chunks/ }).waitFor({ timeout: 120_000 });
+    await shot('capture-resuming-light');
+    await page.getByRole('heading', { name: 'Roster' }).waitFor({ timeout: 240_000 });
+  }, 300_000);
+
   it('keeps 10^5 units in a window of a few dozen rows, and reaches the last one by keyboard', async () => {
-    await page.goto(`${server.origin}/#/roster?study=${encodeURIComponent(wide)}`);
-    await page.locator('[data-row="0"]').waitFor({ timeout: 120_000 });
-    expect(await page.locator('[role="grid"]').getAttribute('aria-rowcount')).toBe('100000');
+    await page.evaluate((hash) => { location.hash = hash; }, `#/roster?study=${encodeURIComponent(wide.study)}`);
+    await page.locator('[data-study-name]', { hasText: 'wide.study' }).waitFor();
+    await page.locator('[role="grid"][aria-rowcount="100000"] [data-row="0"]').waitFor({ timeout: 120_000 });
     const rendered = await page.locator('.body .row').count();
     expect(rendered).toBeGreaterThan(10);
     expect(rendered).toBeLessThan(120);
