@@ -255,7 +255,7 @@ async function main(): Promise<void> {
       md.push('### UI', '', `Not measured: ${u.reason}`, '');
     } else {
       say(`command: ${u.command}`);
-      say(`sizes: study of ${u.units} units in ${u.layers} layers, ${u.probes} probes, 30 labels (scored in ${f2(u.scoreSeconds)} s); medians of ${u.reps} page loads, ${u.filterRuns.length} keystrokes`);
+      say(`sizes: study of ${u.units} units in ${u.layers} layers, ${u.probes} probes, 30 labels (scoreStudy: ${f2(u.scoreSeconds)} s, peak RSS ${u.scorePeakRssMb.toFixed(0)} MiB); medians of ${u.reps} page loads, ${u.filterRuns.length} keystrokes`);
       say(`open → first ranked rows ${u.openMs.toFixed(0)} ms (target < 1000: ${verdict(u.openMs < 1000)}) | unit detail ${u.detailMs.toFixed(0)} ms (< 150: ${verdict(u.detailMs < 150)}; its first chart at ${u.chartMs.toFixed(0)} ms) | filter keystroke → rows ${u.filterMs.toFixed(0)} ms (< 100: ${verdict(u.filterMs < 100)})`);
       const ph = u.openPhases;
       say(`open, where the time goes (medians, ms after navigation start): page scripts evaluated ${ph.scriptsDone.toFixed(0)}, units.table asked ${ph.tableStart.toFixed(0)} and answered ${ph.tableEnd.toFixed(0)}, rows drawn ${u.openMs.toFixed(0)}`);
@@ -266,8 +266,9 @@ async function main(): Promise<void> {
       results.push({ name: 'ui_detail_ms', value: u.detailMs, unit: 'ms', target: '< 150', note: 'Enter on a row → its statistics shown' });
       results.push({ name: 'ui_detail_chart_ms', value: u.chartMs, unit: 'ms', target: null, note: 'Enter on a row → its first chart drawn' });
       results.push({ name: 'ui_filter_ms', value: u.filterMs, unit: 'ms', target: '< 100' });
+      results.push({ name: 'peak_rss_mb_units_1e5', value: u.scorePeakRssMb, unit: 'MiB', target: null, note: `scoreStudy on ${u.units} units × ${u.probes} probes × 30 labels (the UI study)` });
       results.push({ name: 'ui_table_api_ms', value: u.tableApiMs, unit: 'ms', target: null, note: 'units.table in-process, part of ui_open_ms' });
-      md.push('### UI', '', `${u.command}; study of ${u.units} units in ${u.layers} layers × ${u.probes} probes; medians of ${u.reps} page loads and ${u.filterRuns.length} keystrokes.`, '', '| step | ms | target |', '|---|---|---|',
+      md.push('### UI', '', `${u.command}; study of ${u.units} units in ${u.layers} layers × ${u.probes} probes × 30 labels (scoreStudy on it: ${f2(u.scoreSeconds)} s, peak RSS ${u.scorePeakRssMb.toFixed(0)} MiB); medians of ${u.reps} page loads and ${u.filterRuns.length} keystrokes.`, '', '| step | ms | target |', '|---|---|---|',
         `| open the study → first ranked rows | ${u.openMs.toFixed(0)} | < 1000 ${verdict(u.openMs < 1000)} |`,
         `| open a unit's detail (statistics shown) | ${u.detailMs.toFixed(0)} | < 150 ${verdict(u.detailMs < 150)} |`,
         `| … its first chart drawn | ${u.chartMs.toFixed(0)} | |`,

@@ -17,6 +17,8 @@ export type UiFigure =
   | { measured: false; reason: string }
   | {
     measured: true; problems: string[]; command: string; units: number; layers: number; probes: number; reps: number; scoreSeconds: number;
+    /** Peak RSS of scoreStudy on this study (10^5 units): how the job's memory grows with the unit count. */
+    scorePeakRssMb: number;
     /** Medians, ms from the navigation start: page scripts evaluated; units.table asked; its answer received. */
     openPhases: { scriptsDone: number; tableStart: number; tableEnd: number };
     openMs: number; detailMs: number; chartMs: number; filterMs: number;
@@ -153,7 +155,7 @@ export async function uiFigure(dir: string, units: number, probes: number, reps:
   return {
     measured: true, problems: [...new Set(problems)],
     command: 'app/server startServer + the renderer built with vite + Chromium (playwright-core), headless, 1360×860',
-    units, layers, probes, reps, scoreSeconds: scored.value.seconds,
+    units, layers, probes, reps, scoreSeconds: scored.value.seconds, scorePeakRssMb: scored.peakRssMb,
     tableApiMs: median(tableRuns), tableBytes,
     openPhases: {
       scriptsDone: median(openPhases.map((p) => p.scriptsDone)),
