@@ -294,6 +294,17 @@ describe('Skein in Chromium (browser mode)', () => {
     expect(await page.locator('[data-row="0"]').getAttribute('data-unit')).toBe('h:99999');
   });
 
+  it('lists the studies opened so far on the desk, in the dark theme', async () => {
+    await page.locator('[data-theme-toggle]').click();
+    expect(await page.evaluate(() => document.documentElement.dataset.theme)).toBe('dark');
+    await page.locator('header .mark').click();
+    await page.getByRole('heading', { name: /more than one thing/ }).waitFor();
+    const recent = await page.locator('.recents li').allTextContents();
+    for (const name of ['wide.study', 'slow.study', 'demo.study']) expect(recent.some((r) => r.includes(name))).toBe(true);
+    expect(recent[0]).toContain('wide.study'); // newest first
+    await shot('desk-dark');
+  });
+
   it('ran without a console error or a blocked script (plotly under script-src self)', () => {
     expect(problems.slice(0, 20)).toEqual([]);
   });
