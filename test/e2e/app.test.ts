@@ -20,8 +20,6 @@ const repo = fileURLToPath(new URL('../../', import.meta.url));
 const shots = path.join(repo, 'test-output', 'screenshots');
 const CHROMIUM = '/usr/bin/chromium';
 const demoBuilt = fs.existsSync(path.join(sampleDataDir(), 'tiles-model.onnx')) && fs.existsSync(path.join(sampleDataDir(), 'tiles', 'manifest.json'));
-/** Until the demo is built: a folder holding tiles-model.onnx and tiles/ made by `npm run sample-data -- --out DIR`, typed in by path. */
-const stand_in = demoBuilt ? null : process.env.SKEIN_E2E_DEMO_DIR ?? null;
 const CHROMIUM_ARGS = ['--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];
 
 describe('Skein in Chromium (browser mode)', () => {
@@ -51,11 +49,11 @@ describe('Skein in Chromium (browser mode)', () => {
     await build({ configFile: path.join(repo, 'app/renderer/vite.config.ts'), logLevel: 'error', build: { outDir: rendererDir, emptyOutDir: true } });
     const dataDir = path.join(tmp, 'home');
     fs.mkdirSync(dataDir);
-    if (!demoBuilt && !stand_in) throw new Error(`The demo is not built (${sampleDataDir()}); run npm run sample-data.`);
+    if (!demoBuilt) throw new Error(`The demo is not built (${sampleDataDir()}); run npm run sample-data.`);
     wide = wideFixture(path.join(tmp, 'wide'));
     await runScan({ ...wide, layers: ['h'] }); // the roster's 10^5 rows; its scan is not what is tested
     slow = slowFixture(path.join(tmp, 'slow'));
-    server = await startServer({ port: 0, roots: [sampleDataDir(), dataDir, path.join(tmp, 'wide'), path.join(tmp, 'slow'), ...(stand_in ? [stand_in] : [])], rendererDir, dataDir });
+    server = await startServer({ port: 0, roots: [sampleDataDir(), dataDir, path.join(tmp, 'wide'), path.join(tmp, 'slow')], rendererDir, dataDir });
     const profile = path.join(tmp, 'chromium-profile');
     context = await chromium.launchPersistentContext(profile, {
       executablePath: CHROMIUM, headless: true, args: CHROMIUM_ARGS, viewport: { width: 1360, height: 860 }, colorScheme: 'light',
@@ -108,16 +106,7 @@ describe('Skein in Chromium (browser mode)', () => {
   });
 
   it('opens the demo and scans it, showing progress until the roster appears', async () => {
-    if (stand_in) {
-      await page.locator('[data-field="model"] input').fill(path.join(stand_in, 'tiles-model.onnx'));
-      await page.locator('[data-field="probes"] input').fill(path.join(stand_in, 'tiles'));
-      await page.locator('[data-field="study"] input').fill(path.join(tmp, 'home', 'demo.study'));
-      await page.locator('[data-field="study"][data-status="ok"]').waitFor();
-      await page.locator('[data-field="probes"][data-status="ok"]').waitFor();
-      await page.getByRole('button', { name: 'Choose layers…' }).click();
-    } else {
-      await page.locator('[data-open-demo]').click();
-    }
+    await page.locator('[data-open-demo]').click();
     await page.getByRole('heading', { name: 'Capture' }).waitFor();
     await page.locator('[data-tensors] tbody tr').first().waitFor();
     // Defaults are preselected: at least one tensor ticked before the user touches anything.
