@@ -8,7 +8,8 @@ export type Route =
   | { screen: 'roster'; study: string }
   | { screen: 'profile'; study: string; layer: string; unit: number }
   | { screen: 'reach'; study: string; label?: string }
-  | { screen: 'strata'; study: string };
+  | { screen: 'strata'; study: string }
+  | { screen: 'merge'; study: string };
 
 export type Screen = Route['screen'];
 
@@ -27,6 +28,7 @@ export function parseRoute(hash: string): Route {
     }
     case 'roster':
     case 'strata':
+    case 'merge':
       if (study) return { screen, study };
       break;
     case 'profile': {
