@@ -6,7 +6,7 @@ import { SkeinError, isSkeinError, type ErrorInfo } from '../errors.ts';
 import { readModel } from '../model/index.ts';
 import { openProbeSet, writeNpyFloat32 } from '../probes/index.ts';
 import { extract, type ScanHooks } from '../extract/scan.ts';
-import { scoreStudy } from '../score/job.ts';
+import { scoreStudyAsync } from '../score/job.ts';
 import { openStudyDb, readRun, readLayers, findLayer, blobToFloats } from '../store/study.ts';
 import { rankRows, unitDetail, labelNames } from '../store/queries.ts';
 import { createScreenApi } from './screens.ts';
@@ -87,7 +87,7 @@ export async function runScan(req: Request<'scan.start'>, hooks: ScanHooks = {},
   const ex = await extract(req, { ...hooks, nativeBinding: ctx.nativeBinding });
   const db = openStudyDb(req.study, { nativeBinding: ctx.nativeBinding });
   try {
-    const sc = scoreStudy(db, {}, { onProgress: hooks.onProgress, signal: hooks.signal });
+    const sc = await scoreStudyAsync(db, {}, { onProgress: hooks.onProgress, signal: hooks.signal });
     return {
       study: ex.study, probes: ex.probes, layers: ex.layers, chunksComputed: ex.chunksComputed, chunksReused: ex.chunksReused,
       resumed: ex.resumed, scoresReused: sc.reused, extractSeconds: ex.seconds, scoreSeconds: sc.seconds,

@@ -7,9 +7,12 @@ export interface ProgressReport {
   etaSeconds: number | null;
 }
 
-/** Counts work done and estimates the time left from the mean rate so far; reports at most ~10 times a second. */
+/**
+ * Counts work done and estimates the time left from the rate of this run's work (work found already done, as on a
+ * resume, counts as done but not towards the rate); reports at most ~10 times a second.
+ */
 export class Progress {
-  private done = 0;
+  private done: number;
   private readonly started = Date.now();
   private lastReport = 0;
 
@@ -17,7 +20,9 @@ export class Progress {
     private readonly phase: ProgressReport['phase'],
     private readonly total: number,
     private readonly report?: (p: ProgressReport) => void,
+    private readonly alreadyDone = 0,
   ) {
+    this.done = alreadyDone;
     this.emit(true);
   }
 
@@ -37,7 +42,8 @@ export class Progress {
     if (!force && t - this.lastReport < 100) return;
     this.lastReport = t;
     const elapsed = (t - this.started) / 1000;
-    const etaSeconds = this.done > 0 && this.done < this.total ? (elapsed / this.done) * (this.total - this.done) : this.done >= this.total ? 0 : null;
+    const fresh = this.done - this.alreadyDone;
+    const etaSeconds = this.done >= this.total ? 0 : fresh > 0 ? (elapsed / fresh) * (this.total - this.done) : null;
     this.report({ phase: this.phase, done: this.done, total: this.total, etaSeconds });
   }
 }

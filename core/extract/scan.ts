@@ -84,8 +84,9 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
       if (resumed) note(`Resuming: ${reused} of ${chunks} chunks are already in the study.`);
       else if (reused === chunks) note('Every selected layer is already cached in the study; nothing to compute.');
 
+      // Progress counts probes over the whole set; on a resume the cached chunks count as done from the start.
       const probesTodo = pending.reduce((s, p) => s + chunkLength(p.chunk, chunkSize, probes.count), 0);
-      const progress = new Progress('extract', probesTodo, hooks.onProgress);
+      const progress = new Progress('extract', probes.count, hooks.onProgress, probes.count - probesTodo);
       const insertAct = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, argmax) VALUES (?, ?, ?, ?, ?)`);
       const insertDone = db.prepare(`INSERT OR REPLACE INTO chunk_done (layer_id, chunk) VALUES (?, ?)`);
       const touch = db.prepare(`UPDATE run SET updated_at = ? WHERE id = 1`);

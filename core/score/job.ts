@@ -49,6 +49,32 @@ function scoreKey(run: RunRow, layers: LayerRow[], opts: ScoreOptions, override:
  * the study. Reuses the stored scores when nothing they depend on changed.
  */
 export function scoreStudy(db: Database.Database, options: Partial<ScoreOptions> = {}, hooks: ScoreJobHooks = {}): ScoreSummary {
+  const steps = scoreSteps(db, options, hooks);
+  for (;;) {
+    const r = steps.next();
+    if (r.done) return r.value;
+  }
+}
+
+/**
+ * The same job for a process that must keep answering while it scores (the app's API host): it yields to the event
+ * loop every ~50 ms, so progress polls and cancel requests are served during scoring.
+ */
+export async function scoreStudyAsync(db: Database.Database, options: Partial<ScoreOptions> = {}, hooks: ScoreJobHooks = {}): Promise<ScoreSummary> {
+  const steps = scoreSteps(db, options, hooks);
+  let slice = Date.now();
+  for (;;) {
+    const r = steps.next();
+    if (r.done) return r.value;
+    if (Date.now() - slice > 50) {
+      await new Promise((resolve) => setImmediate(resolve));
+      slice = Date.now();
+    }
+  }
+}
+
+/** The scoring job as steps: it yields after each unit. */
+function* scoreSteps(db: Database.Database, options: Partial<ScoreOptions>, hooks: ScoreJobHooks): Generator<void, ScoreSummary> {
   const started = Date.now();
   const run = readRun(db);
   if (!run) throw new SkeinError({ code: 'study', message: 'This study has no scan yet. Run skein scan first.' });
@@ -80,6 +106,7 @@ export function scoreStudy(db: Database.Database, options: Partial<ScoreOptions>
       readUnit(db, run, layer.id, u, values);
       partials.push(scoreUnitPartial(u, values, labels, opts, scratch));
       progress.advance(1);
+      yield;
     }
     for (const score of finishLayer(partials, relatedness, opts)) scored.push({ layer, score, layerOrder });
   }
