@@ -233,16 +233,22 @@ async function main(): Promise<void> {
       const r = await scaleAxis(path.join(outDir, 'studies'), sizes.scaleBase, axis, sizes.scale[axis], jobCache, log);
       axes.push(r);
       say(`${axis}: ${r.points.map((p) => `${p.spec[axis]} → ${f2(p.scoreSeconds)} s, ${p.peakRssMb.toFixed(0)} MiB`).join(' | ')}`);
-      say(`  time ∝ ${axis}^${f2(r.timeSlope)} (${r.timeGrowth}); as a line: ${f2(r.fixedSeconds)} s + ${(r.secondsPerStep * 1000).toPrecision(3)} ms per ${axis.replace(/s$/, '')}; memory above the process floor ∝ ${axis}^${f2(r.memorySlope)} (${r.memoryGrowth})`);
+      const per = axis.replace(/s$/, '');
+      say(`  time ∝ ${axis}^${f2(r.timeSlope)} (${r.timeGrowth}); as a line: ${f2(r.fixedSeconds)} s + ${(r.secondsPerStep * 1000).toPrecision(3)} ms per ${per}`);
+      say(`  peak RSS ∝ ${axis}^${f2(r.memorySlope)} (${r.memoryGrowth}); as a line: ${r.fixedMb.toFixed(0)} MiB + ${(r.mbPerStep * 1024).toPrecision(3)} KiB per ${per}`);
       results.push({ name: `scale_time_exponent_${axis}`, value: r.timeSlope, unit: 'log-log slope', target: null });
-      results.push({ name: `scale_memory_exponent_${axis}`, value: r.memorySlope, unit: 'log-log slope', target: null });
+      results.push({ name: `scale_memory_exponent_${axis}`, value: r.memorySlope, unit: 'log-log slope', target: null, note: 'of the whole peak RSS' });
+      results.push({ name: `scale_memory_kib_per_${axis.replace(/s$/, '')}`, value: r.mbPerStep * 1024, unit: 'KiB', target: null, note: 'slope of the peak-RSS line' });
     }
     const b = sizes.scaleBase;
     md.push('### Scale', '', `Base point ${b.probes} probes × ${b.units} units × ${b.labels} labels; one axis varied at a time; scoreStudy in a child process (one run per point).`, '',
       '| axis | size | probes × units × labels | seconds | peak RSS MiB | RSS before scoring MiB |', '|---|---|---|---|---|---|');
     for (const r of axes) for (const p of r.points) md.push(`| ${r.axis} | ${p.spec[r.axis]} | ${p.spec.probes} × ${p.spec.units} × ${p.spec.labels} | ${f2(p.scoreSeconds)} | ${p.peakRssMb.toFixed(0)} | ${p.baselineRssMb.toFixed(0)} |`);
-    md.push('', '| axis | time grows as (log-log slope) | time as a line | memory above the floor grows as |', '|---|---|---|---|');
-    for (const r of axes) md.push(`| ${r.axis} | ${r.axis}^${f2(r.timeSlope)}: ${r.timeGrowth} | ${f2(r.fixedSeconds)} s + ${(r.secondsPerStep * 1000).toPrecision(3)} ms per ${r.axis.replace(/s$/, '')} | ${r.axis}^${f2(r.memorySlope)}: ${r.memoryGrowth} |`);
+    md.push('', '| axis | time (log-log slope) | time as a line | peak RSS (log-log slope) | peak RSS as a line |', '|---|---|---|---|---|');
+    for (const r of axes) {
+      const per = r.axis.replace(/s$/, '');
+      md.push(`| ${r.axis} | ${r.axis}^${f2(r.timeSlope)}: ${r.timeGrowth} | ${f2(r.fixedSeconds)} s + ${(r.secondsPerStep * 1000).toPrecision(3)} ms per ${per} | ${r.axis}^${f2(r.memorySlope)}: ${r.memoryGrowth} | ${r.fixedMb.toFixed(0)} MiB + ${(r.mbPerStep * 1024).toPrecision(3)} KiB per ${per} |`);
+    }
     md.push('');
   }
 
