@@ -230,6 +230,8 @@ describe('Team review in Chromium (browser mode)', () => {
     await setTheme('dark');
     await page.locator('[data-row="0"] .layer').click();
     await page.keyboard.press('t');
+    // Type only once t has moved the focus into the tag field (a keystroke before that goes to the page).
+    await expect.poll(() => page.evaluate(() => document.activeElement?.hasAttribute('data-tag-input'))).toBe(true);
     await page.keyboard.type('for-meeting');
     await page.keyboard.press('Enter');
     await page.locator('[data-row="0"] [data-row-tag="for-meeting"]').waitFor();
