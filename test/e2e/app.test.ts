@@ -52,7 +52,8 @@ describe('Skein in Chromium (browser mode)', () => {
     if (!demoBuilt) throw new Error(`The demo is not built (${sampleDataDir()}); run npm run sample-data.`);
     wide = wideFixture(path.join(tmp, 'wide'));
     await runScan({ ...wide, layers: ['h'] }); // the roster's 10^5 rows; its scan is not what is tested
-    slow = slowFixture(path.join(tmp, 'slow'));
+    // Enough probes that the resumed scan is still running when the screen first polls it, on an idle machine too.
+    slow = slowFixture(path.join(tmp, 'slow'), { probes: 2000 });
     server = await startServer({ port: 0, roots: [sampleDataDir(), dataDir, path.join(tmp, 'wide'), path.join(tmp, 'slow')], rendererDir, dataDir });
     const profile = path.join(tmp, 'chromium-profile');
     context = await chromium.launchPersistentContext(profile, {
@@ -257,7 +258,7 @@ describe('Skein in Chromium (browser mode)', () => {
     expect(await page.locator('[data-job-state]').textContent()).toContain('Scan again to continue');
     await shot('capture-cancelled-light');
     await page.locator('[data-start-scan]').click();
-    await page.locator('[data-job-note]', { hasText: /Resuming: \d+ of 200 chunks/ }).waitFor({ timeout: 120_000 });
+    await page.locator('[data-job-note]', { hasText: /Resuming: \d+ of 1000 chunks/ }).waitFor({ timeout: 120_000 });
     await shot('capture-resuming-light');
     await page.getByRole('heading', { name: 'Roster' }).waitFor({ timeout: 240_000 });
   }, 300_000);
