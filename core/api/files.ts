@@ -8,7 +8,7 @@ import path from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { z } from 'zod';
 import { SkeinError } from '../errors.ts';
-import { openStudyDb } from '../store/study.ts';
+import { openStudyDb, APP_ID } from '../store/study.ts';
 import type { ApiContext } from './index.ts';
 
 export const fileRequests = {
@@ -51,7 +51,6 @@ export interface DemoPaths { model: string; probes: string; study: string }
 /** A folder with 100 000 files must not produce a 100 000-row answer. */
 export const MAX_ENTRIES = 5000;
 
-const STUDY_APP_ID = 0x534b4e31; // "SKN1", the application_id core/store/study.ts stamps into every study
 const SQLITE_MAGIC = Buffer.from('SQLite format 3\0', 'latin1');
 const STUDY_EXTENSIONS = new Set(['.study', '.db', '.sqlite', '.sqlite3']);
 
@@ -71,7 +70,7 @@ function isStudyFile(file: string, size: number): boolean {
     fd = fs.openSync(file, 'r');
     const header = Buffer.alloc(100);
     fs.readSync(fd, header, 0, 100, 0);
-    return header.subarray(0, 16).equals(SQLITE_MAGIC) && header.readUInt32BE(68) === STUDY_APP_ID;
+    return header.subarray(0, 16).equals(SQLITE_MAGIC) && header.readUInt32BE(68) === APP_ID;
   } catch {
     return false;
   } finally {

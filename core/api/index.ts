@@ -7,7 +7,7 @@ import { readModel } from '../model/index.ts';
 import { openProbeSet, writeNpyFloat32 } from '../probes/index.ts';
 import { extract, type ScanHooks } from '../extract/scan.ts';
 import { scoreStudyAsync } from '../score/job.ts';
-import { openStudyDb, readRun, readLayers, findLayer, blobToFloats } from '../store/study.ts';
+import { openStudyDb, readRun, readLayers, findLayer, blobToFloats, withStudyDb } from '../store/study.ts';
 import { rankRows, unitDetail, labelNames } from '../store/queries.ts';
 import { createScreenApi } from './screens.ts';
 import { createFileApi } from './files.ts';
@@ -100,14 +100,7 @@ export async function runScan(req: Request<'scan.start'>, hooks: ScanHooks = {},
 /** Creates the API object: one method per request, each taking the validated request. */
 export function createApi(ctx: ApiContext = {}) {
   const jobs = new Map<string, { state: JobState; abort: AbortController }>();
-  const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => {
-    const db = openStudyDb(file, { nativeBinding: ctx.nativeBinding });
-    try {
-      return fn(db);
-    } finally {
-      db.close();
-    }
-  };
+  const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => withStudyDb(file, { nativeBinding: ctx.nativeBinding }, fn);
 
   const api = {
     'model.layers': async (r: Request<'model.layers'>) => readModel(r.model),

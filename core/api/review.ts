@@ -23,7 +23,7 @@
 import path from 'node:path';
 import { z } from 'zod';
 import { SkeinError } from '../errors.ts';
-import { openStudyDb, readRun } from '../store/study.ts';
+import { openStudyDb, readRun, withStudyDb } from '../store/study.ts';
 import {
   STATUSES, STATUS_MEANING, TAG_SUGGESTIONS, MAX_NOTE_LENGTH, MAX_TAGS_PER_UNIT, MAX_TAG_LENGTH, MAX_REVIEWER_LENGTH, MAX_BUNDLE_BYTES,
   tagSchema, noteSchema, statusSchema, reviewerSchema, filterSchema, fieldProblem,
@@ -157,14 +157,7 @@ export type ReviewConflictInfo = import('../errors.ts').ErrorInfo & { code: 'con
 export type { Annotation, ConflictDetail, ConflictSide, Field, FieldValue, Status, StoredEvent, ReviewFilter, FingerprintCheck, FieldChange, ImportResult, UndoResult, Preferences, Resolution } from '../review/index.ts';
 
 export function createReviewApi(ctx: ApiContext) {
-  const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => {
-    const db = openStudyDb(file, { nativeBinding: ctx.nativeBinding });
-    try {
-      return fn(db);
-    } finally {
-      db.close();
-    }
-  };
+  const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => withStudyDb(file, { nativeBinding: ctx.nativeBinding }, fn);
   const dataDir = () => ctx.dataDir ?? defaultDataDir();
   // 'file' and 'csv' are not among the API's generic path fields, so browser mode's roots are checked here.
   const checkRoots = (fields: Record<string, string | undefined>) => {

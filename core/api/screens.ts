@@ -4,7 +4,7 @@
  */
 import { z } from 'zod';
 import type { ApiContext } from './index.ts';
-import { openStudyDb } from '../store/study.ts';
+import { openStudyDb, withStudyDb } from '../store/study.ts';
 import { unitTable, unitDistributions, similarUnits, conceptReach, layerOverview, exampleImage, probeLabels } from '../store/views.ts';
 
 const path = z.string().min(1).max(4096);
@@ -38,14 +38,7 @@ export const screenRequests = {
 type Req<K extends keyof typeof screenRequests> = z.infer<(typeof screenRequests)[K]>;
 
 export function createScreenApi(ctx: ApiContext) {
-  const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => {
-    const db = openStudyDb(file, { nativeBinding: ctx.nativeBinding });
-    try {
-      return fn(db);
-    } finally {
-      db.close();
-    }
-  };
+  const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => withStudyDb(file, { nativeBinding: ctx.nativeBinding }, fn);
   return {
     'units.table': async (r: Req<'units.table'>) => withStudy(r.study, (db) => unitTable(db, r.study)),
     'unit.distributions': async (r: Req<'unit.distributions'>) => withStudy(r.study, (db) => unitDistributions(db, r.layer, r.unit, { bins: r.bins, labels: r.labels, file: r.study })),

@@ -23,7 +23,7 @@ export interface LayerRow {
   dims: number[]; kind: 'dense' | 'conv' | 'sequence' | 'flat'; units: number; pool: string;
 }
 
-const APP_ID = 0x534b4e31; // "SKN1": marks a SQLite file as a Skein study
+export const APP_ID = 0x534b4e31; // "SKN1": marks a SQLite file as a Skein study
 
 /** Opens (and, when asked, creates) a study file, migrating it to the current schema. */
 export function openStudyDb(file: string, opts: OpenOptions = {}): Database.Database {
@@ -67,6 +67,16 @@ export function openStudyDb(file: string, opts: OpenOptions = {}): Database.Data
     db.close();
     if (e instanceof SkeinError) throw e;
     throw new SkeinError({ code: 'study', file: abs, message: `Not a readable study file (${(e as Error).message}). Choose a study file or a new file name.` });
+  }
+}
+
+/** Opens a study for one piece of work and always closes it, whatever the work throws. */
+export function withStudyDb<T>(file: string, opts: OpenOptions, fn: (db: Database.Database) => T): T {
+  const db = openStudyDb(file, opts);
+  try {
+    return fn(db);
+  } finally {
+    db.close();
   }
 }
 
