@@ -3,9 +3,9 @@ import path from 'node:path';
 import type Database from 'better-sqlite3';
 import * as ort from 'onnxruntime-node';
 import { SkeinError } from '../errors.ts';
-import { readModel, exposeTensors, createSession, unitLayout, batchPolicy } from '../model/index.ts';
+import { readModel, exposeTensors, createSession, unitLayout, batchPolicy, dryRunShapes } from '../model/index.ts';
 import type { ModelInfo, ValueInfo } from '../model/types.ts';
-import { openProbeSet, checkAgainstModel, float16BitsToNumber } from '../probes/index.ts';
+import { openProbeSet, resolveFillShapes, float16BitsToNumber } from '../probes/index.ts';
 import type { ProbeSet } from '../probes/types.ts';
 import { openStudyDb, readRun, readLayers, doneChunks, floatsToBlob, now, type LayerRow } from '../store/study.ts';
 import { poolBatch, type Pool, type LayerKind } from './pool.ts';
@@ -51,7 +51,7 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
   const note = hooks.onNote ?? (() => {});
   const info = readModel(req.model);
   const probes = openProbeSet(req.probes);
-  checkAgainstModel(probes, info.inputs);
+  const fillShapes = resolveFillShapes(probes, info.inputs);
   for (const w of probes.warnings) note(w);
   const selected = selectLayers(info, req.layers);
 
@@ -67,8 +67,9 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
       if (fixed !== null && req.batch !== undefined && req.batch !== fixed) {
         note(`The model's batch dimension is fixed at ${fixed}; using batch ${fixed} instead of ${req.batch}.`);
       }
-      const feeder = new Feeder(info, probes, fixed);
-      const shapes = await dryRun(session, feeder, selected.map((t) => t.name));
+      const feeder = new Feeder(info, probes, fillShapes, fixed);
+      const dims = await dryRunShapes(info, session, feeder.feeds(0, 1));
+      const shapes = new Map(selected.map((t) => [t.name, dims[t.name].slice(1)]));
       const layers = upsertLayers(db, selected, shapes, req.pool ?? 'max', note);
 
       const chunks = Math.ceil(probes.count / chunkSize);
@@ -253,17 +254,11 @@ function upsertLayers(db: Database.Database, selected: ModelInfo['tensors'], sha
   return readLayers(db).filter((l) => names.has(l.name));
 }
 
-/** Runs one batch to learn each exposed tensor's concrete per-probe dims. */
-async function dryRun(session: ort.InferenceSession, feeder: Feeder, names: string[]): Promise<Map<string, number[]>> {
-  const out = await session.run(feeder.feeds(0, 1), names);
-  return new Map(names.map((n) => [n, out[n].dims.slice(1).map(Number)]));
-}
-
 type TypedData = Float32Array | Float64Array | Int32Array | BigInt64Array | Uint8Array;
 
 /** Builds feeds for a range of probes: probe-set inputs, fill values, and padding to a fixed batch. */
 class Feeder {
-  constructor(private info: ModelInfo, private probes: ProbeSet, private fixed: number | null) {}
+  constructor(private info: ModelInfo, private probes: ProbeSet, private fillShapes: Record<string, number[]>, private fixed: number | null) {}
 
   feeds(start: number, count: number): Record<string, ort.Tensor> {
     const rows = this.fixed ?? count;
@@ -276,8 +271,9 @@ class Feeder {
         if (rows > count) data = padRows(data, per, count, rows);
         feeds[input.name] = toTensor(input, data, [rows, ...src.rowShape]);
       } else {
+        // Per-probe shape from core/probes (symbolic dims sized by the provided inputs); a rank-0 input is a scalar.
         const value = this.probes.fill[input.name];
-        const dims = (input.dims ?? []).map((d, i) => (i === 0 && input.dims!.length > 1 ? rows : typeof d === 'number' ? d : 1));
+        const dims = input.dims?.length === 0 ? [] : [rows, ...this.fillShapes[input.name]];
         const size = dims.reduce((a, b) => a * b, 1);
         feeds[input.name] = toTensor(input, new Float64Array(size).fill(value), dims);
       }
