@@ -7,7 +7,7 @@ import { readModel } from '../model/index.ts';
 import { openProbeSet, writeNpyFloat32 } from '../probes/index.ts';
 import { extract, type ScanHooks } from '../extract/scan.ts';
 import { scoreStudyAsync } from '../score/job.ts';
-import { openStudyDb, readRun, readLayers, findLayer, blobToFloats, withStudyDb } from '../store/study.ts';
+import { openStudyDb, readRun, readLayers, findLayer, readLayerChunk, withStudyDb } from '../store/study.ts';
 import { rankRows, unitDetail, labelNames } from '../store/queries.ts';
 import { createScreenApi } from './screens.ts';
 import { createFileApi } from './files.ts';
@@ -181,11 +181,10 @@ export function createApi(ctx: ApiContext = {}) {
       const layer = findLayer(db, r.layer, r.study);
       if (path.extname(r.out).toLowerCase() !== '.npy') throw new SkeinError({ code: 'request', file: r.out, message: 'Activations export needs a .npy file name.' });
       // Probe-major rows for numpy, built chunk by chunk from unit-major storage: memory is units × chunk size.
-      const stmt = db.prepare(`SELECT vals FROM activation WHERE layer_id = ? AND chunk = ? ORDER BY unit`).pluck();
       function* blocks(): Generator<Float32Array> {
         for (let c = 0; c * run!.chunkSize < run!.probeCount; c++) {
           const length = Math.min(run!.chunkSize, run!.probeCount - c * run!.chunkSize);
-          const cols = (stmt.all(layer.id, c) as Buffer[]).map(blobToFloats);
+          const cols = readLayerChunk(db, layer.id, c);
           if (cols.length !== layer.units) throw new SkeinError({ code: 'study', file: r.study, where: `layer ${layer.name}`, message: 'The scan of this layer is incomplete. Run the scan again to finish it.' });
           const block = new Float32Array(length * layer.units);
           for (let u = 0; u < layer.units; u++) for (let p = 0; p < length; p++) block[p * layer.units + u] = cols[u][p];

@@ -2,6 +2,7 @@ import crypto from 'node:crypto';
 import type Database from 'better-sqlite3';
 import { SkeinError } from '../errors.ts';
 import { readRun, readLayers, readUnit, doneChunks, floatsToBlob, now, type LayerRow, type RunRow } from '../store/study.ts';
+import { labelNames } from '../store/queries.ts';
 import { Progress, type ProgressReport } from '../extract/progress.ts';
 import { scoreUnitPartial, finishLayer, rankUnits, buildRelatedness, defaultScoreOptions, createScratch } from './index.ts';
 import type { LabelMatrix, Relatedness, ScoreOptions, UnitScore } from './types.ts';
@@ -21,7 +22,7 @@ export interface ScoreSummary {
 
 /** The probe labels as stored in the study, in the CSR form the statistics take. */
 export function readLabelMatrix(db: Database.Database, run: RunRow): LabelMatrix {
-  const labels = db.prepare(`SELECT name FROM label ORDER BY id`).pluck().all() as string[];
+  const labels = labelNames(db);
   const rows = db.prepare(`SELECT probe, label FROM probe_label ORDER BY probe, label`).raw().all() as [number, number][];
   const labelOffsets = new Int32Array(run.probeCount + 1);
   const labelIds = new Int32Array(rows.length);

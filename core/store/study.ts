@@ -173,6 +173,11 @@ export function readUnit(db: Database.Database, run: RunRow, layerId: number, un
   return values;
 }
 
+/** Every unit's values for one chunk of probes, in unit order (the probe-major export reads a layer this way). */
+export function readLayerChunk(db: Database.Database, layerId: number, chunk: number): Float32Array[] {
+  return (db.prepare(`SELECT vals FROM activation WHERE layer_id = ? AND chunk = ? ORDER BY unit`).pluck().all(layerId, chunk) as Buffer[]).map(blobToFloats);
+}
+
 /** Argmax locations of one unit (conv/sequence layers), or null when the layer keeps none. */
 export function readUnitArgmax(db: Database.Database, run: RunRow, layerId: number, unit: number, probes: number[]): (number | null)[] {
   const stmt = db.prepare(`SELECT argmax FROM activation WHERE layer_id = ? AND unit = ? AND chunk = ?`).pluck();
