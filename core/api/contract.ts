@@ -7,6 +7,7 @@ import { z } from 'zod';
 import { screenRequests } from './screens.ts';
 import { fileRequests } from './files.ts';
 import { reviewRequests } from './review.ts';
+import { lensRequests } from './lens.ts';
 
 const path = z.string().min(1).max(4096);
 const layerName = z.string().min(1).max(1024);
@@ -37,6 +38,7 @@ export const requests = {
   ...screenRequests,
   ...fileRequests,
   ...reviewRequests,
+  ...lensRequests,
 } as const;
 
 export type Method = keyof typeof requests;
@@ -46,6 +48,7 @@ export type { ErrorInfo } from '../errors.ts';
 export type { ModelInfo, CapturableTensor } from '../model/types.ts';
 export type { RankRow, UnitDetail, LabelStatRow, TopExample } from '../store/queries.ts';
 export type { ProgressReport } from '../extract/progress.ts';
+export type { LensView, LensJobState, UnitLoadings, LensExport, LensResult, LensConcept } from './lens.ts';
 
 export interface ProbeSummary {
   dir: string; name: string; fingerprint: string; count: number;

@@ -8,6 +8,7 @@ import { parseArgs, type ParseArgsConfig } from 'node:util';
 import { createApi, parseRequest, runScan, toErrorInfo } from '../api/index.ts';
 import type { RankRow, UnitDetail, ModelInfo, ProgressReport } from '../api/contract.ts';
 import { REVIEW_HELP, reviewCommand, reportCommand } from './review.ts';
+import { LENS_HELP, LensUsageError, lensCommand } from './lens.ts';
 
 const HELP = `skein — find the polysemantic units of an ONNX model on a labelled probe set
 
@@ -18,6 +19,7 @@ const HELP = `skein — find the polysemantic units of an ONNX model on a labell
   skein export <study> --scores out.csv|out.json
   skein export <study> --activations out.npy --layer L
   skein demo [--study file]      scan the bundled demo and print the ranked units
+${LENS_HELP}
 ${REVIEW_HELP}
 
 Scores are statistical hypotheses about the model on this probe set, not proof: check a unit before pruning or
@@ -178,6 +180,8 @@ export async function main(argv: string[]): Promise<number> {
         }
         return 0;
       }
+      case 'lens':
+        return await lensCommand(rest, api);
       case 'review':
         return await reviewCommand(rest, api);
       case 'report':
@@ -192,7 +196,7 @@ export async function main(argv: string[]): Promise<number> {
         throw new UsageError(`unknown command "${command}"`);
     }
   } catch (e) {
-    if (e instanceof UsageError) {
+    if (e instanceof UsageError || e instanceof LensUsageError) {
       process.stderr.write(`skein ${command ?? ''}: ${e.message}. Run skein help for usage.\n`);
       return 2;
     }
