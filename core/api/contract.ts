@@ -7,6 +7,7 @@ import { z } from 'zod';
 import { screenRequests } from './screens.ts';
 import { fileRequests } from './files.ts';
 import { reviewRequests } from './review.ts';
+import { ablationRequests } from './ablation.ts';
 
 const path = z.string().min(1).max(4096);
 const layerName = z.string().min(1).max(1024);
@@ -37,6 +38,7 @@ export const requests = {
   ...screenRequests,
   ...fileRequests,
   ...reviewRequests,
+  ...ablationRequests,
 } as const;
 
 export type Method = keyof typeof requests;
@@ -87,3 +89,4 @@ export interface ScanResult {
 }
 
 export interface ExportResult { file: string; rows: number; columns: number }
+export type { UnitAblationView, LayerAblationView, LayerAblationRow, AblateJobState, AblationRunInfo, UnitCost, LabelCost, Comparison } from './ablation.ts';

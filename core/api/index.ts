@@ -12,6 +12,7 @@ import { rankRows, unitDetail, labelNames } from '../store/queries.ts';
 import { createScreenApi } from './screens.ts';
 import { createFileApi } from './files.ts';
 import { createReviewApi } from './review.ts';
+import { createAblationApi } from './ablation.ts';
 import { requests, type Method, type Request, type JobState, type ScanResult, type StudySummary, type ProbeSummary, type ExportResult } from './contract.ts';
 
 export { requests };
@@ -195,7 +196,7 @@ export function createApi(ctx: ApiContext = {}) {
       return { file: path.resolve(r.out), rows: run.probeCount, columns: layer.units };
     }),
   };
-  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx) };
+  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx), ...createAblationApi(ctx) };
 }
 
 export type Api = ReturnType<typeof createApi>;
