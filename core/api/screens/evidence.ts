@@ -87,9 +87,9 @@ export const EVIDENCE_FORMULAS = {
   aboveNone: 'above none = P(a probe of the group activates the unit more than a probe with none of the drivers), ties count half (Mann–Whitney U / (n_group · n_none))',
 };
 
-/** A stored driver's parts: its `parts` when the scores carry them (compound drivers), else its one label. */
-function partsOf(d: { label: string; parts?: string[] }): string[] {
-  return d.parts?.length ? d.parts : [d.label];
+/** A stored driver's parts: its `labels` when the scores carry them (compound drivers), else its one label. */
+function partsOf(d: { label: string; labels?: string[] }): string[] {
+  return d.labels?.length ? d.labels : [d.label];
 }
 
 export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, 'study'>, file?: string): UnitEvidence {
@@ -100,7 +100,7 @@ export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, '
   const idOf = new Map(names.map((n, i) => [n, i]));
   const chosen = req.drivers
     ? req.drivers.map((parts) => ({ name: parts.join(' & '), parts, share: null as number | null }))
-    : (detail.drivers as { label: string; share: number; parts?: string[] }[]).map((d) => ({ name: d.label, parts: partsOf(d), share: d.share }));
+    : (detail.drivers as { label: string; share: number; labels?: string[] }[]).map((d) => ({ name: d.label, parts: partsOf(d), share: d.share }));
   const presence = chosen.map((d, i) => driverPresence(run.probeCount, d.parts.map((label, j) => {
     const id = idOf.get(label);
     if (id === undefined) throw new SkeinError({ code: 'request', file, where: `drivers.${i}.${j}`, message: `No label "${label}" in this study.` });
