@@ -131,6 +131,28 @@ describe('Unit evidence in Chromium (browser mode)', () => {
     await expect.poll(() => page.locator('details[data-panel="review"]').getAttribute('open')).not.toBeNull();
   });
 
+  it('weighs a driver list the user types: the either-or unit red | orange, known by construction', async () => {
+    const unit = PLANTED_UNITS.findIndex((u) => u.name === 'red+orange');
+    const { labels } = plantedProbes(PROBES, SEED);
+    const orangeOnly = labels.filter((ls) => ls.includes('orange')).length; // one hue per probe: never with red
+    await open(profile(planted, 'planted', unit));
+    await page.locator('[data-response-table]').waitFor();
+    await page.locator('[data-weigh-input]').fill('red, mauve');
+    await page.locator('[data-weigh] button[type="submit"]').click();
+    expect(await page.locator('[data-weigh] [role="alert"]').textContent()).toBe('No label "mauve" in this study.');
+    await page.locator('[data-weigh-input]').fill('red, orange');
+    await page.locator('[data-weigh-input]').press('Enter');
+    await page.locator('[data-response-table] tr[data-driver="orange"]').waitFor();
+    expect(await cell('orange', 'alone-n')).toBe(orangeOnly.toLocaleString('en-US'));
+    expect(await cell('orange', 'with-n')).toBe('0');
+    expect(await cell('orange', 'alone-effect')).toMatch(/^\+1\.00[01]$/);
+    expect(await cell('red', 'alone-effect')).toMatch(/^\+1\.00[01]$/);
+    await shot('evidence-weigh-light');
+    await page.locator('[data-weigh-reset]').click();
+    await page.locator('[data-weigh-reset]').waitFor({ state: 'detached' });
+    await page.locator('[data-response-table]').waitFor();
+  });
+
   it('says so when a unit has no driver, and still shows what it fires on', async () => {
     await open(profile(planted, 'planted', PLANTED_UNITS.findIndex((u) => u.name === 'dead')));
     await page.locator('[data-panel="evidence"] [data-empty]', { hasText: 'No drivers to weigh' }).waitFor();

@@ -1,6 +1,6 @@
 /** The unit page's "why it ranks here" line and signed effects (app/renderer/src/lib/evidence.ts). */
 import { describe, expect, it } from 'vitest';
-import { rankReason, signed } from '../../app/renderer/src/lib/evidence.ts';
+import { parseDriverList, rankReason, signed } from '../../app/renderer/src/lib/evidence.ts';
 
 const n = (unit: number, conceptCount: number, evidence = 10, flagged = false) => ({ layer: 'fc1', unit, rank: 0, conceptCount, evidence, flagged });
 
@@ -29,5 +29,18 @@ describe('signed', () => {
     expect(signed(-0.31)).toBe('−0.31');
     expect(signed(-0.0001)).toBe('0.00');
     expect(signed(null)).toBe('—');
+  });
+});
+
+describe('parseDriverList', () => {
+  const labels = ['red', 'blue', 'square', 'top'];
+  it('reads commas as separate drivers and & as parts of one', () => {
+    expect(parseDriverList('red, blue & square', labels)).toEqual({ drivers: [['red'], ['blue', 'square']] });
+    expect(parseDriverList(' top ,, ', labels)).toEqual({ drivers: [['top']] });
+  });
+  it('refuses an empty list, an unknown label and a compound of four', () => {
+    expect(parseDriverList(' , ', labels)).toHaveProperty('error');
+    expect(parseDriverList('red, mauve', labels)).toEqual({ error: 'No label "mauve" in this study.' });
+    expect(parseDriverList('red & blue & square & top', labels)).toEqual({ error: 'A compound has at most 3 parts: "red & blue & square & top" has 4.' });
   });
 });

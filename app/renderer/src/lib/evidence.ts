@@ -38,3 +38,20 @@ export function rankReason(r: RankingReason): string {
   }
   return parts.join(' ');
 }
+
+/**
+ * A driver list typed by the user: drivers separated by commas, the parts of a compound joined by "&"
+ * ("red, blue & square" → [["red"], ["blue", "square"]]). Unknown labels and compounds of more than 3 parts are
+ * refused with a message naming them; `labels` is the study's label list.
+ */
+export function parseDriverList(text: string, labels: readonly string[]): { drivers: string[][] } | { error: string } {
+  const known = new Set(labels);
+  const drivers = text.split(',').map((d) => d.split('&').map((p) => p.trim()).filter(Boolean)).filter((d) => d.length);
+  if (!drivers.length) return { error: 'Type one or more labels, separated by commas; join labels that must be present together with &.' };
+  if (drivers.length > 12) return { error: `At most 12 drivers at once; this list has ${drivers.length}.` };
+  const long = drivers.find((d) => d.length > 3);
+  if (long) return { error: `A compound has at most 3 parts: "${long.join(' & ')}" has ${long.length}.` };
+  const unknown = drivers.flat().filter((l) => !known.has(l));
+  if (unknown.length) return { error: `No label ${unknown.map((l) => `"${l}"`).join(', ')} in this study.` };
+  return { drivers };
+}
