@@ -44,12 +44,16 @@ export function doneAblationUnits(db: Database.Database, runId: number): Set<num
   return new Set(db.prepare(`SELECT unit FROM ablation_unit WHERE run_id = ?`).pluck().all(runId) as number[]);
 }
 
-/** Stores one unit's cost in its own transaction (synchronous = FULL: a committed unit survives a crash). */
-export function writeAblationUnit(db: Database.Database, row: Omit<AblationUnitRow, 'at'>): void {
+/** Stores units' costs in one transaction (synchronous = FULL: committed units survive a crash; none half-written). */
+export function writeAblationUnits(db: Database.Database, rows: Omit<AblationUnitRow, 'at'>[]): void {
+  if (rows.length === 0) return;
+  const insert = db.prepare(`INSERT OR REPLACE INTO ablation_unit (run_id, unit, hurt_count, concepts_hurt, largest_label, largest_mean, reps, cost, at)
+                             VALUES (@runId, @unit, @hurtCount, @conceptsHurt, @largestLabel, @largestMean, @reps, @cost, @at)`);
+  const touch = db.prepare(`UPDATE ablation_run SET updated_at = ? WHERE id = ?`);
   db.transaction(() => {
-    db.prepare(`INSERT OR REPLACE INTO ablation_unit (run_id, unit, hurt_count, concepts_hurt, largest_label, largest_mean, reps, cost, at)
-                VALUES (@runId, @unit, @hurtCount, @conceptsHurt, @largestLabel, @largestMean, @reps, @cost, @at)`).run({ ...row, at: now() });
-    db.prepare(`UPDATE ablation_run SET updated_at = ? WHERE id = ?`).run(now(), row.runId);
+    const t = now();
+    for (const row of rows) insert.run({ ...row, at: t });
+    for (const id of new Set(rows.map((r) => r.runId))) touch.run(t, id);
   })();
 }
 
