@@ -9,6 +9,7 @@ import { studyRequests } from './requests/study.ts';
 import { screenRequests } from './requests/screens.ts';
 import { fileRequests } from './requests/files.ts';
 import { reviewRequests } from './requests/review.ts';
+import { ablationRequests } from './requests/ablation.ts';
 
 /** Every request the API answers, by method name. */
 export const requests = {
@@ -16,6 +17,7 @@ export const requests = {
   ...screenRequests,
   ...fileRequests,
   ...reviewRequests,
+  ...ablationRequests,
 } as const;
 
 export type Method = keyof typeof requests;
@@ -69,3 +71,4 @@ export interface ScanResult {
 }
 
 export interface ExportResult { file: string; rows: number; columns: number }
+export type { UnitAblationView, LayerAblationView, LayerAblationRow, AblateJobState, AblationRunInfo, UnitCost, LabelCost, Comparison } from './ablation.ts';

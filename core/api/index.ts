@@ -16,6 +16,7 @@ import { createScreenApi } from './screens/index.ts';
 import { createFileApi } from './files.ts';
 import { createReviewApi } from './review.ts';
 import { checkPaths, type ApiContext } from './context.ts';
+import { createAblationApi } from './ablation.ts';
 import { requests, type Method, type Request, type JobState, type ScanResult, type StudySummary, type ProbeSummary, type ExportResult } from './contract.ts';
 
 export { requests };
@@ -150,7 +151,7 @@ export function createApi(ctx: ApiContext = {}) {
       return { file: path.resolve(r.out), rows: binding.probeCount, columns: layer.units };
     }),
   };
-  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx) };
+  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx), ...createAblationApi(ctx) };
 }
 
 export type Api = ReturnType<typeof createApi>;

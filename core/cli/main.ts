@@ -8,6 +8,7 @@ import { createApi, parseRequest, runScan, toErrorInfo } from '../api/index.ts';
 import type { RankRow, UnitDetail, ModelInfo, ProgressReport } from '../api/contract.ts';
 import { REVIEW_HELP, reviewCommand, reportCommand } from './review.ts';
 import { UsageError, parse, intOption, unitArg } from './args.ts';
+import { ABLATE_HELP, ablateCommand } from './ablate.ts';
 
 const HELP = `skein — find the polysemantic units of an ONNX model on a labelled probe set
 
@@ -19,6 +20,7 @@ const HELP = `skein — find the polysemantic units of an ONNX model on a labell
   skein export <study> --activations out.npy --layer L
   skein demo [--study file]      scan the bundled demo and print the ranked units
 ${REVIEW_HELP}
+${ABLATE_HELP}
 
 Scores are statistical hypotheses about the model on this probe set, not proof: check a unit before pruning or
 trusting it.`;
@@ -159,6 +161,8 @@ export async function main(argv: string[]): Promise<number> {
         return await reviewCommand(rest, api);
       case 'report':
         return await reportCommand(rest, api);
+      case 'ablate':
+        return await ablateCommand(rest, api);
       case undefined:
       case 'help':
       case '--help':

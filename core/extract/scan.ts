@@ -134,7 +134,7 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
 }
 
 /** Exposed float16 tensors come back as raw half-precision bits; everything is stored as float32. */
-function asFloats(t: ort.Tensor): ArrayLike<number> {
+export function asFloats(t: ort.Tensor): ArrayLike<number> {
   if (t.type === 'float16') return Float32Array.from(t.data as Uint16Array, float16BitsToNumber);
   return t.data as Float32Array | Float64Array;
 }
@@ -175,7 +175,7 @@ export function selectLayers(info: ModelInfo, names?: string[]) {
 }
 
 /** A numeric batch dimension shared by the fed inputs, or null when it is dynamic. */
-function fixedBatch(inputs: ValueInfo[]): number | null {
+export function fixedBatch(inputs: ValueInfo[]): number | null {
   let fixed: number | null = null;
   for (const i of inputs) {
     const f = batchPolicy(i).fixed;
@@ -227,7 +227,7 @@ function upsertLayers(db: Database.Database, selected: ModelInfo['tensors'], sha
 type TypedData = Float32Array | Float64Array | Int32Array | BigInt64Array | Uint8Array;
 
 /** Builds feeds for a range of probes: probe-set inputs, fill values, and padding to a fixed batch. */
-class Feeder {
+export class Feeder {
   constructor(private info: ModelInfo, private probes: ProbeSet, private fillShapes: Record<string, number[]>, private fixed: number | null) {}
 
   feeds(start: number, count: number): Record<string, ort.Tensor> {

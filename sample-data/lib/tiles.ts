@@ -71,6 +71,12 @@ export function probeSetFiles(set: TileSet): Map<string, Uint8Array | string> {
     for (let f = 0; f < FAMILY_COUNT; f++) labelRows.push([i, CONCEPTS[conceptIndex(set, i, f)].label]);
   }
   files.set('labels.csv', encodeCsv(['probe', 'label'], labelRows));
+  // What the classifier should answer: its output rows follow concepts.csv, so each label is a class index.
+  const targetRows: (string | number)[][] = [];
+  for (let i = 0; i < set.count; i++) {
+    for (let f = 0; f < FAMILY_COUNT; f++) targetRows.push([i, 'attributes', conceptIndex(set, i, f)]);
+  }
+  files.set('targets.csv', encodeCsv(['probe', 'output', 'value'], targetRows));
   files.set(
     'concepts.csv',
     encodeCsv(['label', 'group', 'parent', 'description'], CONCEPTS.map((c) => [c.label, c.group, c.parent, c.description])),

@@ -1,6 +1,6 @@
 /**
  * Migrating a study written by an earlier Skein: the dead/dense words of schema 2's JSON `flags` column become the typed
- * columns of schema 3 and read back the same through the scores repository. The schema-2 file is made with schema.ts's
+ * columns of schema 4 and read back the same through the scores repository. The schema-2 file is made with schema.ts's
  * own first two migrations, so it is exactly what that version wrote.
  */
 import path from 'node:path';
@@ -11,7 +11,7 @@ import { APP_ID, openStudyDb } from '../../core/store/study.ts';
 import { readUnitScores } from '../../core/store/scores.ts';
 import { tempDir } from '../support/fixtures.ts';
 
-describe('schema 2 → 3', () => {
+describe('schema 2 → 4 (typed flags in 3 → 4)', () => {
   it('turns the JSON flags into typed dead / dense columns, unit by unit', () => {
     const file = path.join(tempDir(), 'old.study');
     const old = new Database(file);

@@ -24,4 +24,13 @@ export const screenRequests = {
   'example.image': z.strictObject({ study: filePath, probe: z.number().int().min(0) }),
   /** Label names of up to 512 probes (captions of top examples). */
   'probes.labels': z.strictObject({ study: filePath, probes: z.array(z.number().int().min(0)).max(512) }),
+  /**
+   * The evidence for one unit's drivers. `drivers` (optional) replaces the stored driver list with the caller's own,
+   * each a list of 1–3 labels that must all be present (a compound); default: the unit's stored drivers.
+   */
+  'unit.evidence': z.strictObject({
+    study: filePath, layer: layerName, unit: z.number().int().min(0),
+    drivers: z.array(z.array(labelName).min(1).max(3)).max(12).optional(),
+    examples: z.number().int().min(1).max(24).optional(),
+  }),
 } satisfies Record<string, z.ZodType>;

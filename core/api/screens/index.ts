@@ -7,6 +7,7 @@ import type { ApiContext } from '../context.ts';
 import type { screenRequests } from '../requests/screens.ts';
 import { openStudyDb, withStudyDb } from '../../store/study.ts';
 import { unitTable, unitDistributions, similarUnits, conceptReach, layerOverview, exampleImage, probeLabels } from './read-models.ts';
+import { unitEvidence } from './evidence.ts';
 
 type Req<K extends keyof typeof screenRequests> = z.infer<(typeof screenRequests)[K]>;
 
@@ -20,6 +21,7 @@ export function createScreenApi(ctx: ApiContext) {
     'layers.overview': async (r: Req<'layers.overview'>) => withStudy(r.study, (db) => layerOverview(db, r.study)),
     'example.image': async (r: Req<'example.image'>) => withStudy(r.study, (db) => exampleImage(db, r.probe, r.study)),
     'probes.labels': async (r: Req<'probes.labels'>) => withStudy(r.study, (db) => probeLabels(db, r.probes)),
+    'unit.evidence': async ({ study, ...r }: Req<'unit.evidence'>) => withStudy(study, (db) => unitEvidence(db, r, study)),
   };
 }
 
@@ -27,3 +29,4 @@ export type {
   UnitTable, UnitDistributions, SimilarUnits, ConceptReach, ConceptReachRow, LayerOverview, LayerOverviewRow, ScoreThresholds, UnitKind,
   RankRow, UnitDetail, LabelStatRow, TopExample,
 } from './read-models.ts';
+export type { UnitEvidence, DriverEvidence, EvidenceExample, RankingReason } from './evidence.ts';
