@@ -11,6 +11,7 @@ import os from 'node:os';
 import path from 'node:path';
 import { createRequire } from 'node:module';
 import Database from 'better-sqlite3';
+import { sqliteVersion } from '../core/store/study.ts';
 import { mlp, cnn } from './lib/models.ts';
 import { benchDir, median, seconds } from './lib/measure.ts';
 import { scanFigure, type ScanFigure } from './figures/scan.ts';
@@ -98,7 +99,7 @@ const verdict = (ok: boolean) => (ok ? 'met' : 'MISSED');
 function machine(): Record<string, string> {
   const require = createRequire(import.meta.url);
   const db = new Database(':memory:');
-  const sqlite = db.prepare('select sqlite_version()').pluck().get() as string;
+  const sqlite = sqliteVersion(db);
   db.close();
   return {
     cpu: `${os.cpus()[0]?.model ?? '?'} × ${os.cpus().length}`,

@@ -10,6 +10,7 @@ import { runScan } from '../../core/api/index.ts';
 import { createSession } from '../../core/model/index.ts';
 import { openProbeSet } from '../../core/probes/index.ts';
 import { openStudyDb } from '../../core/store/study.ts';
+import { clearAblations } from '../../core/store/ablation.ts';
 import { ablateLayer, BULK_REPS } from '../../core/intervene/job.ts';
 import { Ablator } from '../../core/intervene/run.ts';
 import { probeHarm, labelCosts } from '../../core/intervene/effects.ts';
@@ -68,7 +69,7 @@ async function measureLayer(study: string, model: string, probesDir: string, nam
     let s!: Awaited<ReturnType<typeof ablateLayer>>;
     for (let r = 0; r < reps; r++) {
       plain.push(await plainPass(model, probesDir, probes, 1));
-      db.prepare(`DELETE FROM ablation_run`).run();
+      clearAblations(db);
       s = await ablateLayer(db, { model, layer, mode: 'zero', sample });
       perUnit.push(s.perUnitSeconds);
     }
@@ -138,7 +139,7 @@ export async function ablationFigure(work: string, sizes: { probes: number; reps
   try {
     const layerUnits = fc;
     for (const k of [layerUnits / 4, layerUnits / 2, layerUnits]) {
-      db.prepare(`DELETE FROM ablation_run`).run();
+      clearAblations(db);
       const t = performance.now();
       await ablateLayer(db, { model: modelFile, layer: 'r3', mode: 'zero' }, {}, Array.from({ length: k }, (_, u) => u));
       unitsGrowth.push({ layer: 'r3', units: k, seconds: (performance.now() - t) / 1000 });

@@ -3,44 +3,19 @@
  * progress, cancel and resume, and the stored results for the unit page, the layer view and the roster.
  */
 import crypto from 'node:crypto';
-import { z } from 'zod';
-import type { ApiContext } from './index.ts';
+import type { z } from 'zod';
+import type { ApiContext } from './context.ts';
+import type { ablationRequests } from './requests/ablation.ts';
 import { SkeinError, isSkeinError, type ErrorInfo } from '../errors.ts';
-import { openStudyDb, withStudyDb, readRun, findLayer } from '../store/study.ts';
-import { rankRows } from '../store/queries.ts';
+import { openStudyDb, withStudyDb } from '../store/study.ts';
+import { readBinding, findLayer } from '../store/binding.ts';
+import { hasScores } from '../store/scores.ts';
+import { rankRows } from './screens/read-models.ts';
 import { ablationRuns, ablationUnits, latestAblationUnit, rosterAblationCosts, type AblationRunRow, type AblationUnitRow } from '../store/ablation.ts';
 import { ablateUnit, ablateLayer, type LayerSummary, type AblateHooks } from '../intervene/job.ts';
 import { compareDriversAndCost, type Comparison } from '../intervene/compare.ts';
 import type { UnitCost } from '../intervene/effects.ts';
 import type { ProgressReport } from '../extract/progress.ts';
-
-const path = z.string().min(1).max(4096);
-const layerName = z.string().min(1).max(1024);
-const setup = {
-  study: path,
-  /** The model file; default: the one the study was scanned with. */
-  model: path.optional(),
-  layer: layerName,
-  mode: z.enum(['zero', 'mean', 'value']).optional(),
-  value: z.number().finite().optional(),
-  sample: z.number().int().min(2).max(10_000_000).optional(),
-  seed: z.number().int().min(0).max(2 ** 32 - 1).optional(),
-};
-
-export const ablationRequests = {
-  /** Ablate one unit now, with full bootstrap intervals (skein ablate --unit). */
-  'ablate.unit': z.strictObject({ ...setup, unit: z.number().int().min(0) }),
-  /** The newest stored cost of one unit, or null (the unit page opens with it). */
-  'ablate.cached': z.strictObject({ study: path, layer: layerName, unit: z.number().int().min(0) }),
-  /** Ablate every unit of a layer, one at a time, as a job (skein ablate --all). */
-  'ablate.start': z.strictObject(setup),
-  'ablate.job': z.strictObject({ job: z.string().min(1).max(64) }),
-  'ablate.cancel': z.strictObject({ job: z.string().min(1).max(64) }),
-  /** The stored bulk results of a layer (newest run, or the one named), units ranked by unrelated concepts hurt. */
-  'ablate.layer': z.strictObject({ study: path, layer: layerName, run: z.number().int().min(1).optional() }),
-  /** Per layer, the concepts hurt of every unit with a stored cost (the roster's sort). */
-  'ablate.roster': z.strictObject({ study: path }),
-} satisfies Record<string, z.ZodType>;
 
 type Req<K extends keyof typeof ablationRequests> = z.infer<(typeof ablationRequests)[K]>;
 
@@ -74,7 +49,7 @@ const runInfo = (r: AblationRunRow): AblationRunInfo => ({
 });
 
 function driversOf(db: Parameters<typeof rankRows>[0], layer: string, file: string): Map<number, { labels: string[]; concepts: number }> {
-  const scored = (db.prepare(`SELECT count(*) FROM score_run`).pluck().get() as number) > 0;
+  const scored = hasScores(db);
   if (!scored) return new Map();
   return new Map(rankRows(db, { layer, file }).map((r) => [r.unit, { labels: r.drivers.map((d) => d.label), concepts: r.conceptCount }]));
 }
@@ -89,7 +64,7 @@ function unitView(db: Parameters<typeof rankRows>[0], file: string, layer: strin
 export async function runAblateLayer(r: Req<'ablate.start'>, hooks: AblateHooks, ctx: ApiContext = {}): Promise<LayerSummary> {
   const db = openStudyDb(r.study, { nativeBinding: ctx.nativeBinding });
   try {
-    const study = readRun(db);
+    const study = readBinding(db);
     if (!study) throw new SkeinError({ code: 'study', file: r.study, message: 'This study has no scan yet. Scan the model first.' });
     return await ablateLayer(db, { model: r.model ?? study.modelPath, layer: r.layer, mode: r.mode ?? 'zero', value: r.value, sample: r.sample, seed: r.seed }, hooks, undefined, r.study);
   } finally {
@@ -101,7 +76,7 @@ export function createAblationApi(ctx: ApiContext) {
   const jobs = new Map<string, { state: AblateJobState; abort: AbortController }>();
   const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => withStudyDb(file, { nativeBinding: ctx.nativeBinding }, fn);
   const fps = (db: ReturnType<typeof openStudyDb>, file: string) => {
-    const run = readRun(db);
+    const run = readBinding(db);
     if (!run) throw new SkeinError({ code: 'study', file, message: 'This study has no scan yet. Scan the model first.' });
     return run;
   };

@@ -11,9 +11,8 @@ import { readModel, createSession } from '../model/index.ts';
 import { openProbeSet, resolveFillShapes } from '../probes/index.ts';
 import type { ProbeSet } from '../probes/types.ts';
 import { Feeder, fixedBatch } from '../extract/scan.ts';
-import { readRun, findLayer, type LayerRow, type RunRow } from '../store/study.ts';
-import { labelNames } from '../store/queries.ts';
-import { readLabelMatrix, readConcepts } from '../score/job.ts';
+import { readBinding, findLayer, labelNames, readConcepts, readRelatednessOverride, type LayerRow, type StudyBinding } from '../store/binding.ts';
+import { readLabelMatrix } from '../score/job.ts';
 import { buildRelatedness } from '../score/relatedness.ts';
 import { mulberry32, shuffle } from '../random.ts';
 import { cutAt, unitSlice, type CutModel } from './surgery.ts';
@@ -69,7 +68,7 @@ export function sampleProbes(count: number, size: number | undefined, seed: numb
 }
 
 export interface AblationContext {
-  run: RunRow;
+  run: StudyBinding;
   layer: LayerRow;
   cut: CutModel;
   baseline: Baseline;
@@ -98,7 +97,7 @@ export class Ablator {
   ) {}
 
   static async open(db: Database.Database, setup: AblationSetup, studyFile?: string): Promise<Ablator> {
-    const run = readRun(db);
+    const run = readBinding(db);
     if (!run) throw new SkeinError({ code: 'study', file: studyFile, message: 'This study has no scan yet. Scan the model first (skein scan).' });
     const layer = findLayer(db, setup.layer, studyFile);
     const info = readModel(setup.model);
@@ -167,8 +166,7 @@ export class Ablator {
 
     const labels = readLabelMatrix(db, run);
     const index = labelIndex(labels.labels, labels.labelOffsets, labels.labelIds, indices);
-    const override = db.prepare(`SELECT value FROM meta WHERE key = 'relatedness_override'`).pluck().get() as string | undefined;
-    const similarity = buildRelatedness(labelNames(db), labels, readConcepts(db), override ? JSON.parse(override) : null).matrix;
+    const similarity = buildRelatedness(labelNames(db), labels, readConcepts(db), readRelatednessOverride(db)).matrix;
 
     const target = cache.get(layer.name)!;
     const unitMeans = meansPerUnit(target.data as Float32Array, indices.length, layer);

@@ -96,3 +96,8 @@ export function rosterAblationCosts(db: Database.Database, fps: { modelFp: strin
   }
   return out;
 }
+
+/** Forgets every stored ablation run and its unit costs (a benchmark's fresh start; users never need it). */
+export function clearAblations(db: Database.Database): void {
+  db.prepare(`DELETE FROM ablation_run`).run();
+}

@@ -151,6 +151,15 @@ export const migrations: string[] = [
     PRIMARY KEY (run_id, unit)
   ) WITHOUT ROWID;
   `,
+  // 3 → 4: dead and dense as typed columns instead of words inside a JSON array (read without text matching).
+  `
+  ALTER TABLE unit_score ADD COLUMN dead INTEGER NOT NULL DEFAULT 0 CHECK (dead IN (0, 1));
+  ALTER TABLE unit_score ADD COLUMN dense INTEGER NOT NULL DEFAULT 0 CHECK (dense IN (0, 1));
+  UPDATE unit_score SET
+    dead = EXISTS (SELECT 1 FROM json_each(unit_score.flags) WHERE value = 'dead'),
+    dense = EXISTS (SELECT 1 FROM json_each(unit_score.flags) WHERE value = 'dense');
+  ALTER TABLE unit_score DROP COLUMN flags;
+  `,
 ];
 
 export const SCHEMA_VERSION = migrations.length;

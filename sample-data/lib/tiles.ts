@@ -1,6 +1,7 @@
 /** Builds the "tiles" demo: the probe-set folder and the trained ONNX classifier, byte-identical on every run. */
 import fs from 'node:fs';
 import path from 'node:path';
+import { writeFileDurably } from '../../core/fs/index.ts';
 import { encodeCsv, encodeNpyFloat32, encodeTilePng } from './files';
 import { calibrateBiases, evaluate, initParams, roundedToFloat32, train, type NetParams, type NetShape, type TrainOptions } from './net';
 import { encodeTilesModel, MODEL_INPUT } from './onnx-export';
@@ -111,11 +112,6 @@ function writeFolder(dir: string, files: Map<string, Uint8Array | string>): void
   fs.renameSync(staging, dir);
 }
 
-function writeFileAtomically(file: string, bytes: Uint8Array): void {
-  const staging = `${file}.partial`;
-  fs.writeFileSync(staging, bytes);
-  fs.renameSync(staging, file);
-}
 
 export function trainTilesModel(trainCount: number, epochs: number): { params: NetParams; epochLosses: number[]; trainSet: TileSet } {
   const trainSet = generateTiles(SEEDS.train, trainCount);
@@ -132,7 +128,7 @@ export function buildTiles(opts: BuildOptions): BuildResult {
   const probeDir = path.join(opts.outDir, PROBE_SET_FOLDER);
   const modelPath = path.join(opts.outDir, MODEL_FILE);
   writeFolder(probeDir, probeSetFiles(probes));
-  writeFileAtomically(modelPath, encodeTilesModel(params));
+  writeFileDurably(modelPath, encodeTilesModel(params));
   return {
     probeDir,
     modelPath,

@@ -11,7 +11,9 @@ import fs from 'node:fs';
 import path from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { runScan, createApi } from '../../core/api/index.ts';
-import { openStudyDb, readRun, readUnit, findLayer } from '../../core/store/study.ts';
+import { openStudyDb } from '../../core/store/study.ts';
+import { readBinding, findLayer } from '../../core/store/binding.ts';
+import { readUnit } from '../../core/store/activations.ts';
 import { Ablator } from '../../core/intervene/run.ts';
 import { ablateUnit, ablateLayer } from '../../core/intervene/job.ts';
 import { studentTUpperTail, quantileSorted, regularizedBeta, bootstrapMeanInterval } from '../../core/intervene/stats.ts';
@@ -82,7 +84,7 @@ describe('ablation on a model with known answers', () => {
     const db = openStudyDb(study);
     const a = await Ablator.open(db, { model, layer: 'hidden', mode: 'zero' });
     try {
-      const run = readRun(db)!;
+      const run = readBinding(db)!;
       const L = PLANTED_LABELS.length;
       for (const u of [0, 1, 3]) {
         const h = readUnit(db, run, findLayer(db, 'hidden').id, u);

@@ -2,16 +2,16 @@
  * The unit table's filter and sort, as plain functions over the column arrays of 'units.table'
  * (no per-row objects: 10^5 rows filter and sort in a few milliseconds).
  */
-import type { UnitTable } from '../../../../core/api/screens.ts';
+import type { UnitTable, UnitKind as CoreUnitKind } from '../../../../core/api/contract.ts';
 
 export type { UnitTable };
 
-/** Bits of UnitTable.flags (core/store/views.ts FLAG_DEAD, FLAG_DENSE). */
+/** Bits of UnitTable.flags (core/api/screens/read-models.ts FLAG_DEAD, FLAG_DENSE). */
 export const FLAG_DEAD = 1;
 export const FLAG_DENSE = 2;
 
-/** Which kind of unit to keep. 'mixed': concept count at or above the polysemantic threshold. */
-export type UnitKind = 'any' | 'mixed' | 'single' | 'undriven' | 'dead' | 'dense';
+/** Which kind of unit to keep (kinds are classified in core/score/kind.ts and sent in the table), or any. */
+export type UnitKind = 'any' | CoreUnitKind;
 
 export interface RosterFilter {
   /** Free text: whitespace-separated terms, all must match (layer name, unit number or a driver label). */
@@ -37,14 +37,9 @@ export function firstDirection(key: SortKey): SortDir {
   return key === 'concepts' || key === 'hurt' || key === 'selectivity' || key === 'flags' ? -1 : 1;
 }
 
-export function kindOf(t: UnitTable, i: number): Exclude<UnitKind, 'any'> {
-  const f = t.flags[i];
-  if (f & FLAG_DEAD) return 'dead';
-  if (f & FLAG_DENSE) return 'dense';
-  const cc = t.conceptCount[i] ?? 0;
-  if (cc >= t.thresholds.polysemanticAt) return 'mixed';
-  if (cc > 0) return 'single';
-  return 'undriven';
+/** The kind core classified this row as (never recomputed here). */
+export function kindOf(t: UnitTable, i: number): CoreUnitKind {
+  return t.kinds[t.kind[i]];
 }
 
 export function driversOf(t: UnitTable, i: number): { label: number; name: string; share: number }[] {
