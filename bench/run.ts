@@ -55,7 +55,7 @@ const FULL: Sizes = {
   scaleBase: { probes: 20_000, units: 1024, labels: 30, seed: 5 },
   scale: { probes: [20_000, 60_000, 200_000], units: [1024, 2048, 4096], labels: [10, 30, 100] },
   uiUnits: 100_000, uiProbes: 1024, uiReps: 5,
-  ablation: { probes: 4096, reps: 3, cnn: [28, 32, 64, 128] },
+  ablation: { probes: 2048, reps: 3, cnn: [28, 16, 32, 64] },
 };
 
 const QUICK: Sizes = {
@@ -310,7 +310,17 @@ async function main(): Promise<void> {
       results.push({ name: `ablation_unit_seconds_probes_${g.probes}`, value: g.perUnitSeconds, unit: 's', target: null, note: `${g.layer}, ratio to a plain pass ${f2(g.ratio)}` });
     }
     say(`growth with probes (r2): ${a.growth.map((g) => `${g.probes}: ${(g.perUnitSeconds * 1000).toFixed(2)} ms/unit (${f2(g.ratio)}×)`).join(', ')}`);
-    md.push('', 'Units: a layer of U units costs one-off + U × per unit (each unit is one downstream run); see the three layers per model above.', '');
+    md.push('', '| growth with units (r3, bulk pass end to end) | seconds |', '|---|---|');
+    for (const g of a.unitsGrowth) {
+      md.push(`| ${g.units} units | ${g.seconds.toFixed(3)} |`);
+      results.push({ name: `ablation_bulk_seconds_units_${g.units}`, value: g.seconds, unit: 's', target: null, note: `${g.layer}, one-off + units × per unit` });
+    }
+    const [u0, , u2] = a.unitsGrowth;
+    if (u0 && u2) {
+      const perUnit = (u2.seconds - u0.seconds) / (u2.units - u0.units);
+      say(`growth with units (r3): ${a.unitsGrowth.map((g) => `${g.units}: ${g.seconds.toFixed(2)} s`).join(', ')} → ${(perUnit * 1000).toFixed(2)} ms per extra unit, ${(u0.seconds - perUnit * u0.units).toFixed(2)} s fixed`);
+      md.push('', `A line through the ends: ${(perUnit * 1000).toFixed(2)} ms per extra unit plus ${(u0.seconds - perUnit * u0.units).toFixed(2)} s fixed (the upstream pass and the baseline).`, '');
+    }
   }
 
   const total = seconds(started);

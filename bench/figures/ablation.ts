@@ -29,7 +29,12 @@ export interface AblationCase {
   forwardSeconds: number; statsSeconds: number;
 }
 
-export interface AblationFigure { cases: AblationCase[]; growth: { model: string; layer: string; probes: number; perUnitSeconds: number; plainSeconds: number; ratio: number }[] }
+export interface AblationFigure {
+  cases: AblationCase[];
+  growth: { model: string; layer: string; probes: number; perUnitSeconds: number; plainSeconds: number; ratio: number }[];
+  /** Total time of the bulk pass against the number of units ablated (one layer, nothing reused). */
+  unitsGrowth: { layer: string; units: number; seconds: number }[];
+}
 
 /** One plain inference pass over the first `count` probes, batch 512, model outputs only (median of reps). */
 async function plainPass(modelFile: string, probesDir: string, count: number, reps: number): Promise<number> {
@@ -58,10 +63,18 @@ async function measureLayer(study: string, model: string, probesDir: string, nam
   const db = openStudyDb(study);
   try {
     const probes = sample ?? openProbeSet(probesDir).count;
-    const plainSeconds = await plainPass(model, probesDir, probes, reps);
-    // The bulk pass as users run it (a fresh setup each time: nothing reused).
-    clearAblations(db);
-    const s = await ablateLayer(db, { model, layer, mode: 'zero', sample });
+    // Interleaved, fresh each time (nothing reused), medians: the machine is shared and noisy.
+    const plain: number[] = [];
+    const perUnit: number[] = [];
+    let s!: Awaited<ReturnType<typeof ablateLayer>>;
+    for (let r = 0; r < reps; r++) {
+      plain.push(await plainPass(model, probesDir, probes, 1));
+      clearAblations(db);
+      s = await ablateLayer(db, { model, layer, mode: 'zero', sample });
+      perUnit.push(s.perUnitSeconds);
+    }
+    const plainSeconds = median(plain);
+    const perUnitSeconds = median(perUnit);
     // Where one unit's time goes, on the same setup.
     const a = await Ablator.open(db, { model, layer, mode: 'zero', sample });
     let fwd = 0; let stats = 0;
@@ -76,8 +89,8 @@ async function measureLayer(study: string, model: string, probesDir: string, nam
     const oneOff = a.ctx.timing.upstream + a.ctx.timing.baseline;
     await a.release();
     return {
-      model: name, layer, units: s.run.units, probes, metric: s.run.metric, plainSeconds, perUnitSeconds: s.perUnitSeconds,
-      ratio: s.perUnitSeconds / plainSeconds, oneOffSeconds: oneOff, forwardSeconds: fwd / units / 1000, statsSeconds: stats / units / 1000,
+      model: name, layer, units: s.run.units, probes, metric: s.run.metric, plainSeconds, perUnitSeconds,
+      ratio: perUnitSeconds / plainSeconds, oneOffSeconds: oneOff, forwardSeconds: fwd / units / 1000, statsSeconds: stats / units / 1000,
     };
   } finally {
     db.close();
@@ -121,5 +134,19 @@ export async function ablationFigure(work: string, sizes: { probes: number; reps
     growth.push({ model: m.description, layer: 'r2', probes: n, perUnitSeconds: c.perUnitSeconds, plainSeconds: c.plainSeconds, ratio: c.ratio });
     log(`growth r2 @ ${n}: ${JSON.stringify(growth.at(-1))}`);
   }
-  return { cases, growth };
+  const unitsGrowth: AblationFigure['unitsGrowth'] = [];
+  const db = openStudyDb(study);
+  try {
+    const layerUnits = fc;
+    for (const k of [layerUnits / 4, layerUnits / 2, layerUnits]) {
+      clearAblations(db);
+      const t = performance.now();
+      await ablateLayer(db, { model: modelFile, layer: 'r3', mode: 'zero' }, {}, Array.from({ length: k }, (_, u) => u));
+      unitsGrowth.push({ layer: 'r3', units: k, seconds: (performance.now() - t) / 1000 });
+      log(`units growth r3 @ ${k}: ${JSON.stringify(unitsGrowth.at(-1))}`);
+    }
+  } finally {
+    db.close();
+  }
+  return { cases, growth, unitsGrowth };
 }

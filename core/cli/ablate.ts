@@ -32,6 +32,7 @@ function printUnit(v: UnitAblationView): void {
   console.log(`${v.layer} unit ${v.unit}: ${run.mode === 'value' ? `set to ${run.value}` : `${run.mode} ablation`} over ${run.probes} probes${run.sample ? ` (seeded sample, seed ${run.seed})` : ''}`);
   console.log(`cost measured as the ${METRIC_WORDS[cost.metric] ?? cost.metric} of output "${run.output}"; minimum effect ${fmt(cost.floor, 4)}; ${cost.reps} bootstrap resamples`);
   console.log(`hurt: ${cost.hurt.length ? cost.hurt.join(', ') : 'none'}   unrelated concepts hurt: ${fmt(cost.conceptsHurt, 2)}   largest: ${cost.largest ? `${cost.largest.label} ${fmt(cost.largest.mean, 4)}` : '—'}`);
+  console.log(`every probe: mean cost ${fmt(cost.overall.mean, 4)}${cost.overall.costly ? ' — the model gets worse across the board' : ''}`);
   console.log(`drivers: ${v.drivers.length ? v.drivers.join(', ') : 'none'}\n${v.comparison.sentence}\n`);
   const acc = cost.labels.some((l) => l.accuracyBase !== null);
   table(['  label', 'n', 'mean cost', '95% interval', 'q', 'hurt', ...(acc ? ['accuracy'] : [])],

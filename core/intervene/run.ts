@@ -15,7 +15,7 @@ import { readBinding, findLayer, labelNames, readConcepts, readRelatednessOverri
 import { readLabelMatrix } from '../score/job.ts';
 import { buildRelatedness } from '../score/relatedness.ts';
 import { mulberry32, shuffle } from '../random.ts';
-import { cutAt, unitBroadcastShape, KEEP_INPUT, SHIFT_INPUT, type CutModel } from './surgery.ts';
+import { cutAt, unitSlice, type CutModel } from './surgery.ts';
 import { readTargets, type Targets } from './targets.ts';
 import { planHarm, probeHarm, labelIndex, labelCosts, type Baseline, type HarmPlan, type LabelIndex, type UnitCost, type CostOptions } from './effects.ts';
 
@@ -121,7 +121,8 @@ export class Ablator {
     const fed = info.inputs.filter((i) => probes.inputs.some((s) => s.name === i.name) || i.name in probes.fill);
     const fixed = fixedBatch(fed);
     const batch = fixed ?? Math.max(1, setup.batch ?? DEFAULT_RUN_BATCH);
-    const feeder = new Feeder(info, probeView(probes, indices), resolveFillShapes(probes, info.inputs), fixed);
+    // Every probe: read them in order as the scan does; a sample: through a view of the chosen rows.
+    const feeder = new Feeder(info, indices.length === probes.count ? probes : probeView(probes, indices), resolveFillShapes(probes, info.inputs), fixed);
 
     // Upstream: once per probe, keeping every tensor the downstream part reads.
     const t0 = performance.now();
@@ -176,7 +177,7 @@ export class Ablator {
       t: probesTargets?.fingerprint ?? null,
     })).digest('hex');
 
-    // The baseline is the same downstream graph with keep = 1, shift = 0: the same kernels as every ablation.
+    // The baseline is the same downstream graph fed the untouched tensor: the same kernels as every ablation.
     const ablator = new Ablator(
       { run, layer, cut, baseline: null as unknown as Baseline, plan: null as unknown as HarmPlan, index, similarity, targets: probesTargets, unitMeans, key,
         setup: { ...setup, seed }, timing: { upstream: upstreamSeconds, baseline: 0 } },
@@ -190,50 +191,64 @@ export class Ablator {
     return ablator;
   }
 
-  /** keep/shift for ablating `units` under the setup's mode (see surgery.ts). */
-  private edits(units: number[]): { keep: ort.Tensor; shift: ort.Tensor } {
-    const { layer, setup, unitMeans, cut } = this.ctx;
-    const shape = unitBroadcastShape(layer.kind, layer.dims);
-    const size = shape.reduce((a, b) => a * b, 1);
-    const Arr = cut.targetType === 'float64' ? Float64Array : Float32Array;
-    const keep = new Arr(size).fill(1);
-    const shift = new Arr(size);
-    for (const u of units) {
+  /** Each ablated unit's slice of a probe's row of the layer, and the value it is replaced by (see surgery.ts). */
+  private edits(units: number[]): { start: number; step: number; count: number; value: number }[] {
+    const { layer, setup, unitMeans } = this.ctx;
+    return units.map((u) => {
       if (!(Number.isInteger(u) && u >= 0 && u < layer.units)) {
         throw new SkeinError({ code: 'request', where: 'unit', message: `Layer "${layer.name}" has units 0 to ${layer.units - 1}; there is no unit ${u}.` });
       }
-      keep[u] = 0;
-      shift[u] = setup.mode === 'mean' ? unitMeans[u] : setup.mode === 'value' ? setup.value! : 0;
-    }
-    return { keep: new ort.Tensor(cut.targetType, keep, shape), shift: new ort.Tensor(cut.targetType, shift, shape) };
+      const value = setup.mode === 'mean' ? unitMeans[u] : setup.mode === 'value' ? setup.value! : 0;
+      return { ...unitSlice(layer.kind, layer.dims, u), value };
+    });
   }
 
   private async forward(units: number[]): Promise<{ data: Float32Array; width: number }> {
     const layerCache = this.cache.get(this.ctx.layer.name)!;
-    const n = layerCache.data.length / layerCache.perProbe;
+    const per = layerCache.perProbe;
+    const n = layerCache.data.length / per;
     const output = this.output;
-    const { keep, shift } = this.edits(units);
+    const edits = this.edits(units);
+    const target = layerCache.data as Float32Array | Float64Array;
+    const slots = edits.reduce((s, e) => s + e.count, 0);
     let result: Float32Array | null = null;
     let width = 0;
     for (let off = 0; off < n; off += this.batch) {
       const count = Math.min(this.batch, n - off);
       const rows = this.fixed ?? count;
-      const feeds: Record<string, ort.Tensor> = { [KEEP_INPUT]: keep, [SHIFT_INPUT]: shift };
-      for (const [name, c] of this.cache) {
-        let slice = c.data.subarray(off * c.perProbe, (off + count) * c.perProbe) as Cached;
-        if (rows > count) {
-          const padded = new (c.data.constructor as { new (k: number): Cached })(rows * c.perProbe);
-          (padded as Float32Array).set(slice as Float32Array);
-          for (let r = count; r < rows; r++) (padded as Float32Array).copyWithin(r * c.perProbe, (count - 1) * c.perProbe, count * c.perProbe);
-          slice = padded;
+      // Replace the units in the fed tensor itself (only their slices), run, then put the cached values back.
+      const saved = new Float64Array(count * slots);
+      let k = 0;
+      for (let p = off; p < off + count; p++) {
+        for (const e of edits) {
+          for (let j = 0, at = p * per + e.start; j < e.count; j++, at += e.step) { saved[k++] = target[at]; target[at] = e.value; }
         }
-        feeds[name] = new ort.Tensor(c.type, slice as Float32Array, [rows, ...c.dims]);
       }
-      const out = (await this.session.run(feeds, [output]))[output];
-      const per = out.size / out.dims[0];
-      if (!result) { width = per; result = new Float32Array(n * per); }
-      const src = out.data as Float32Array | Float64Array;
-      for (let k = 0; k < count * per; k++) result[off * per + k] = src[k];
+      try {
+        const feeds: Record<string, ort.Tensor> = {};
+        for (const [name, c] of this.cache) {
+          let slice = c.data.subarray(off * c.perProbe, (off + count) * c.perProbe) as Cached;
+          if (rows > count) {
+            const padded = new (c.data.constructor as { new (k: number): Cached })(rows * c.perProbe);
+            (padded as Float32Array).set(slice as Float32Array);
+            for (let r = count; r < rows; r++) (padded as Float32Array).copyWithin(r * c.perProbe, (count - 1) * c.perProbe, count * c.perProbe);
+            slice = padded;
+          }
+          feeds[name] = new ort.Tensor(c.type, slice as Float32Array, [rows, ...c.dims]);
+        }
+        const out = (await this.session.run(feeds, [output]))[output];
+        const outPer = out.size / out.dims[0];
+        if (!result) { width = outPer; result = new Float32Array(n * outPer); }
+        const src = out.data as Float32Array | Float64Array;
+        for (let q = 0; q < count * outPer; q++) result[off * outPer + q] = src[q];
+      } finally {
+        k = 0;
+        for (let p = off; p < off + count; p++) {
+          for (const e of edits) {
+            for (let j = 0, at = p * per + e.start; j < e.count; j++, at += e.step) target[at] = saved[k++];
+          }
+        }
+      }
     }
     return { data: result ?? new Float32Array(0), width };
   }

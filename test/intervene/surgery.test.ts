@@ -1,24 +1,37 @@
 /**
  * Graph surgery for ablations on the model shapes capture supports (fixed batch, opsets 9 to 21, Conv, Gemm,
- * MatMul, a shape-computed Reshape): the downstream model with keep = 1, shift = 0 reproduces the model, and an
- * ablation matches an independent forward pass (plain TypeScript loops from the ONNX operator specification, and
+ * MatMul, a shape-computed Reshape): the downstream model fed the untouched tensor reproduces the model, and an
+ * ablation (the unit's slice of the fed tensor replaced, core/intervene/surgery.ts unitSlice) matches an independent forward pass (plain TypeScript loops from the ONNX operator specification, and
  * NumPy via Debian's /usr/bin/python3 for mean ablation).
  */
 import { execFileSync } from 'node:child_process';
 import * as ort from 'onnxruntime-node';
 import { describe, expect, it } from 'vitest';
 import { buildModel } from '../../core/model/writer.ts';
-import { cutAt, unitBroadcastShape, KEEP_INPUT, SHIFT_INPUT, type CutModel } from '../../core/intervene/surgery.ts';
+import { onnx } from '../../core/model/proto.ts';
+import { cutAt, unitSlice, type CutModel } from '../../core/intervene/surgery.ts';
 import { CNN, cnnSpec, cnnWeights, conv2d, gemmTransB, maxPool2d, MLP, mlpSpec, mlpWeights, randomArray, relu, seededRandom, tanh } from '../model/fixtures.ts';
 
-/** Runs upstream then downstream with the given keep/shift; returns the first output. */
-async function runCut(cut: CutModel, feeds: Record<string, ort.Tensor>, keep: Float32Array, shift: Float32Array, shape: number[]): Promise<Float32Array> {
+type Kind = 'dense' | 'conv' | 'sequence' | 'flat';
+
+/**
+ * Runs upstream, replaces units of the target in the fed tensor (unit → value, at unitSlice's positions), runs
+ * downstream; returns the first output.
+ */
+async function runCut(cut: CutModel, feeds: Record<string, ort.Tensor>, kind: Kind, dims: number[], replace: Record<number, number>): Promise<Float32Array> {
   const up = await ort.InferenceSession.create(cut.upstream);
   const down = await ort.InferenceSession.create(cut.downstream);
   try {
     const cached = cut.frontier.filter((f) => f.source === 'cached').map((f) => f.name);
     const outs = await up.run(feeds, cached);
-    const dfeeds: Record<string, ort.Tensor> = { [KEEP_INPUT]: new ort.Tensor('float32', keep, shape), [SHIFT_INPUT]: new ort.Tensor('float32', shift, shape) };
+    const t = outs[cut.target];
+    const data = t.data as Float32Array;
+    const per = t.size / t.dims[0];
+    for (const [u, value] of Object.entries(replace)) {
+      const s = unitSlice(kind, dims, Number(u));
+      for (let p = 0; p < t.dims[0]; p++) for (let j = 0; j < s.count; j++) data[p * per + s.start + j * s.step] = value;
+    }
+    const dfeeds: Record<string, ort.Tensor> = {};
     for (const f of cut.frontier) dfeeds[f.name] = f.source === 'cached' ? outs[f.name] : feeds[f.name];
     const r = await down.run(dfeeds);
     return r[cut.outputs[0]].data as Float32Array;
@@ -50,13 +63,11 @@ describe('cutting a model at a tensor', () => {
     const cut = cutAt(bytes, 'act1_out');
     expect(cut.frontier.map((f) => f.name)).toEqual(['act1_out']);
     expect(cut.downstreamNodes).toBe(3); // fc2, act2, fc3: one ablation reruns the part after the cut only
+    expect(onnx.ModelProto.decode(cut.downstream).graph!.input!.map((i) => i.name)).toEqual(['act1_out']);
     const x = randomArray(seededRandom(5), 2 * MLP.inputs, 2);
     const feeds = { x: new ort.Tensor('float32', x, [2, MLP.inputs]) };
-    const shape = unitBroadcastShape('dense', [MLP.hidden1]);
-    const ones = new Float32Array(MLP.hidden1).fill(1);
-    expectClose(await runCut(cut, feeds, ones, new Float32Array(MLP.hidden1), shape), mlpAblated(w, x, 2, 0, null), 1e-5);
-    const keep = ones.slice(); keep[3] = 0;
-    expectClose(await runCut(cut, feeds, keep, new Float32Array(MLP.hidden1), shape), mlpAblated(w, x, 2, 3, 0), 1e-5);
+    expectClose(await runCut(cut, feeds, 'dense', [MLP.hidden1], {}), mlpAblated(w, x, 2, 0, null), 1e-5);
+    expectClose(await runCut(cut, feeds, 'dense', [MLP.hidden1], { 3: 0 }), mlpAblated(w, x, 2, 3, 0), 1e-5);
   });
 
   it('mean ablation equals an independent NumPy forward pass of the same weights (Debian python3-numpy)', async () => {
@@ -71,9 +82,7 @@ describe('cutting a model at a tensor', () => {
     await up.release();
     let mean = 0;
     for (let i = 0; i < n; i++) mean += h[i * MLP.hidden1 + unit] / n;
-    const keep = new Float32Array(MLP.hidden1).fill(1); keep[unit] = 0;
-    const shift = new Float32Array(MLP.hidden1); shift[unit] = mean;
-    const got = await runCut(cut, { x: new ort.Tensor('float32', x, [n, MLP.inputs]) }, keep, shift, [1, MLP.hidden1]);
+    const got = await runCut(cut, { x: new ort.Tensor('float32', x, [n, MLP.inputs]) }, 'dense', [MLP.hidden1], { [unit]: mean });
     const script = `
 import json, sys, numpy as np
 d = json.load(sys.stdin)
@@ -94,10 +103,8 @@ print(json.dumps((t @ f('w3', ${MLP.outputs}, ${MLP.hidden2}).T + f('b3', ${MLP.
     const n = 3;
     const cut = cutAt(buildModel({ ...cnnSpec(w), opset: 21 }), 'relu_out');
     const x = randomArray(seededRandom(6), n * CNN.channels * CNN.size * CNN.size);
-    const keep = new Float32Array(CNN.filters).fill(1); keep[1] = 0;
-    const shape = unitBroadcastShape('conv', [CNN.filters, CNN.size, CNN.size]);
-    expect(shape).toEqual([1, CNN.filters, 1, 1]);
-    const got = await runCut(cut, { image: new ort.Tensor('float32', x, [n, CNN.channels, CNN.size, CNN.size]) }, keep, new Float32Array(CNN.filters).fill(0).map((_, c) => (c === 1 ? 0.25 : 0)), shape);
+    expect(unitSlice('conv', [CNN.filters, CNN.size, CNN.size], 1)).toEqual({ start: CNN.size * CNN.size, step: 1, count: CNN.size * CNN.size });
+    const got = await runCut(cut, { image: new ort.Tensor('float32', x, [n, CNN.channels, CNN.size, CNN.size]) }, 'conv', [CNN.filters, CNN.size, CNN.size], { 1: 0.25 });
     // Reference: Conv → Relu, channel 1 set to 0.25 everywhere, → MaxPool → Gemm.
     const conv = conv2d(x, n, CNN.channels, CNN.size, CNN.size, w.conv, w.convBias, CNN.filters, CNN.kernel, CNN.kernel, 1);
     const act = relu(conv.data);
@@ -134,8 +141,7 @@ print(json.dumps((t @ f('w3', ${MLP.outputs}, ${MLP.hidden2}).T + f('b3', ${MLP.
     const cut = cutAt(bytes, 'seq');
     expect(cut.frontier.map((f) => f.name)).toEqual(['seq']); // Shape/Gather/Concat rerun downstream, not cached
     const x = randomArray(seededRandom(9), n * T * D);
-    const keep = new Float32Array(H).fill(1); keep[2] = 0;
-    const got = await runCut(cut, { x: new ort.Tensor('float32', x, [n, T, D]) }, keep, new Float32Array(H), unitBroadcastShape('sequence', [T, H]));
+    const got = await runCut(cut, { x: new ort.Tensor('float32', x, [n, T, D]) }, 'sequence', [T, H], { 2: 0 });
     const want = new Float64Array(n * O);
     for (let i = 0; i < n; i++) {
       const flat = new Float64Array(T * H);
