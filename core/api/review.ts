@@ -164,9 +164,9 @@ export function createReviewApi(ctx: ApiContext) {
 
     'review.export': async (r: Req<'review.export'>): Promise<ExportBundleResult> => withStudy(r.study, (db) => {
       const fps = studyFingerprints(db, r.study);
-      const run = readBinding(db)!;
+      const binding = readBinding(db)!;
       const chosen = listAnnotations(db, fps).filter(filterPredicate(r.filter));
-      const bundle = buildBundle(db, fps, run.probesName, chosen, signer(r.reviewer), (r.filter ?? null) as ReviewFilter | null);
+      const bundle = buildBundle(db, fps, binding.probesName, chosen, signer(r.reviewer), (r.filter ?? null) as ReviewFilter | null);
       const text = JSON.stringify(bundle, null, 1) + '\n';
       if (Buffer.byteLength(text) > MAX_BUNDLE_BYTES) {
         throw new SkeinError({ code: 'review', file: r.out, message: `This bundle would be larger than ${MAX_BUNDLE_BYTES / 1048576} MB, more than a colleague's Skein accepts. Export with a filter (by layer, tag or status) in parts.` });

@@ -59,7 +59,7 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
 
   const db = openStudyDb(req.study, { create: true, nativeBinding: hooks.nativeBinding });
   try {
-    const chunkSize = bindRun(db, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
+    const chunkSize = bindToStudy(db, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
 
     const bytes = exposeTensors(fs.readFileSync(info.path), selected.map((t) => t.name), { modelPath: info.path });
     const session = await createSession(bytes, { intraOpThreads: req.threads }, info.path);
@@ -185,7 +185,7 @@ export function fixedBatch(inputs: ValueInfo[]): number | null {
 }
 
 /** Binds the study to this model + probe set; discards stale activations and scores when either changed. */
-function bindRun(db: Database.Database, info: ModelInfo, probes: ProbeSet, chunkSize: number, note: (m: string) => void): number {
+function bindToStudy(db: Database.Database, info: ModelInfo, probes: ProbeSet, chunkSize: number, note: (m: string) => void): number {
   const bound = readBinding(db);
   if (bound && bound.modelFp === info.fingerprint && bound.probesFp === probes.fingerprint) {
     updateBindingPaths(db, info.path, probes.dir);

@@ -57,7 +57,7 @@ export interface ReportData {
 /** Gathers the units the filter selects, most polysemantic first, with what the report shows of each. */
 export function gatherReport(db: Database.Database, studyFile: string, filter: ReviewFilter, generatedBy: string | null): ReportData {
   requireScores(db, studyFile);
-  const run = readBinding(db)!;
+  const binding = readBinding(db)!;
   const fps = studyFingerprints(db, studyFile);
   const layers = new Map(readLayers(db).map((l) => [l.name, l]));
   const annotations = new Map(listAnnotations(db, fps).map((a) => [selectionKey(a.layer, a.unit), a]));
@@ -110,8 +110,8 @@ export function gatherReport(db: Database.Database, studyFile: string, filter: R
   const all = table.conceptCount.map((x, i) => ({ x: x ?? NaN, y: table.selectivity[i] ?? NaN }));
   return {
     studyFile: path.resolve(studyFile), generatedAt: now(), generatedBy,
-    model: { path: run.modelPath, fingerprint: run.modelFp },
-    probes: { name: run.probesName, fingerprint: run.probesFp, count: run.probeCount },
+    model: { path: binding.modelPath, fingerprint: binding.modelFp },
+    probes: { name: binding.probesName, fingerprint: binding.probesFp, count: binding.probeCount },
     selection: describeFilter(filter), units, all,
   };
 }

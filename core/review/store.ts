@@ -60,9 +60,9 @@ export class ReviewConflictError extends SkeinError {
 }
 
 export function studyFingerprints(db: Database.Database, file?: string): Fingerprints {
-  const run = readBinding(db);
-  if (!run) throw new SkeinError({ code: 'study', file, message: 'This study has no scan yet, so there are no units to review. Run skein scan into it first.' });
-  return { modelFp: run.modelFp, probesFp: run.probesFp };
+  const binding = readBinding(db);
+  if (!binding) throw new SkeinError({ code: 'study', file, message: 'This study has no scan yet, so there are no units to review. Run skein scan into it first.' });
+  return { modelFp: binding.modelFp, probesFp: binding.probesFp };
 }
 
 /** The key of a unit of this study; the layer may be named by tensor or node name, the key uses the tensor name. */
