@@ -1,4 +1,4 @@
-/** Seeded randomness: one explicit generator for everything that draws (the demo build, k-fold splits, fixtures), so runs repeat exactly. */
+/** Seeded randomness: every draw comes from one explicit generator, so demo builds and bootstrap resamples repeat exactly. */
 
 export type Rng = () => number;
 

@@ -5,30 +5,17 @@
 import fs from 'node:fs';
 import path from 'node:path';
 import crypto from 'node:crypto';
-import { z } from 'zod';
+import type { z } from 'zod';
+import type { lensRequests } from './requests/lens.ts';
 import { stringify } from 'csv-stringify/sync';
 import { SkeinError, isSkeinError, type ErrorInfo } from '../errors.ts';
 import type { ProgressReport } from '../extract/progress.ts';
-import { openStudyDb, withStudyDb, findLayer } from '../store/study.ts';
+import { openStudyDb, withStudyDb } from '../store/study.ts';
+import { findLayer } from '../store/binding.ts';
+import { writeFileDurably } from '../fs/index.ts';
 import { writeNpyFloat32 } from '../probes/index.ts';
 import { cachedLens, layerLens, unitLoadings, type LayerLens, type LensResult } from '../geometry/index.ts';
-import type { ApiContext } from './index.ts';
-
-const studyPath = z.string().min(1).max(4096);
-const layerName = z.string().min(1).max(1024);
-
-export const lensRequests = {
-  /** The layer's lens when it is cached and still valid, else `{ state: 'missing' }` (nothing is computed). */
-  'lens.get': z.strictObject({ study: studyPath, layer: layerName }),
-  /** Compute (or reuse) a layer's lens as a job: poll lens.job, stop with lens.cancel. */
-  'lens.start': z.strictObject({ study: studyPath, layer: layerName }),
-  'lens.job': z.strictObject({ job: z.string().min(1).max(64) }),
-  'lens.cancel': z.strictObject({ job: z.string().min(1).max(64) }),
-  /** The concept directions one unit's axis sits between (from the cached lens). */
-  'lens.unit': z.strictObject({ study: studyPath, layer: layerName, unit: z.number().int().min(0) }),
-  /** Every figure of a cached lens as CSV + JSON, and the directions as .npy, into the folder `out`. */
-  'lens.export': z.strictObject({ study: studyPath, layer: layerName, out: studyPath }),
-} satisfies Record<string, z.ZodType>;
+import type { ApiContext } from './context.ts';
 
 type Req<K extends keyof typeof lensRequests> = z.infer<(typeof lensRequests)[K]>;
 
@@ -53,13 +40,6 @@ export interface UnitLoadings {
 
 export interface LensExport { files: string[] }
 
-/** Writes a file via a temporary name and a rename, so an interrupted export leaves no half-written file. */
-function writeFileAtomically(file: string, text: string): void {
-  const tmp = `${file}.tmp-${process.pid}`;
-  fs.writeFileSync(tmp, text);
-  fs.renameSync(tmp, file);
-}
-
 /** The lens's figures as files: summary.json, concepts.csv, cosine.csv, localisation.csv, projection.csv, directions.npy. */
 export function exportLens(lens: LayerLens, dir: string): string[] {
   const r = lens.result;
@@ -71,7 +51,7 @@ export function exportLens(lens: LayerLens, dir: string): string[] {
   const base = r.layer.replace(/[^A-Za-z0-9._-]+/g, '_');
   const file = (name: string) => path.join(abs, `${base}.${name}`);
   const files: string[] = [];
-  const put = (name: string, text: string) => { writeFileAtomically(file(name), text); files.push(file(name)); };
+  const put = (name: string, text: string) => { writeFileDurably(file(name), text); files.push(file(name)); };
   put('lens.json', JSON.stringify(r, null, 1) + '\n');
   put('concepts.csv', stringify(r.concepts.map((c, i) => [i, c.name, c.kind, c.positives, c.norm, c.auroc ?? '', c.carried, c.decodable, c.dimensionality, c.interference, c.k95 ?? '', c.locality]),
     { header: true, columns: ['row', 'concept', 'kind', 'positives', 'norm', 'probe_auroc', 'carried', 'decodable', 'dimensionality', 'interference', 'k95', 'locality'] }));

@@ -2,16 +2,14 @@
  * `skein lens <study> [--layer L] [--json] [--export DIR]`: the superposition lens from the command line, through
  * the same job requests as the screens (progress on stderr, Ctrl-C cancels, a cached result is reused).
  */
-import { parseArgs } from 'node:util';
 import { parseRequest, type Api } from '../api/index.ts';
 import type { LensResult, ProgressReport } from '../api/contract.ts';
 import { SkeinError } from '../errors.ts';
+import { UsageError, parse } from './args.ts';
 
 export const LENS_HELP = `  skein lens <study> [--layer L] [--json] [--export DIR]
                                   how many concepts a layer packs beyond its width, and how they interfere;
                                   --export writes CSV/JSON of every figure and the directions as .npy into DIR`;
-
-export class LensUsageError extends Error {}
 
 const f = (x: number | null, d = 3) => (x === null ? '—' : x.toFixed(d));
 
@@ -59,22 +57,17 @@ async function runOne(api: Api, study: string, layer: string): Promise<{ result:
 }
 
 export async function lensCommand(argv: string[], api: Api): Promise<number> {
-  let parsed;
-  try {
-    parsed = parseArgs({ args: argv, options: { layer: { type: 'string' }, json: { type: 'boolean' }, export: { type: 'string' } }, allowPositionals: true, strict: true });
-  } catch (e) {
-    throw new LensUsageError((e as Error).message);
-  }
-  if (parsed.positionals.length !== 1) throw new LensUsageError(`expected 1 argument (the study), got ${parsed.positionals.length}`);
+  const parsed = parse(argv, { layer: { type: 'string' }, json: { type: 'boolean' }, export: { type: 'string' } }, 1);
+  if (parsed.values.export !== undefined && typeof parsed.values.export !== 'string') throw new UsageError('--export needs a folder name');
   const study = parsed.positionals[0];
-  const layers = parsed.values.layer ? [parsed.values.layer] : (await api['study.summary'](parseRequest('study.summary', { study }))).layers.map((l) => l.name);
+  const layers = typeof parsed.values.layer === 'string' ? [parsed.values.layer] : (await api['study.summary'](parseRequest('study.summary', { study }))).layers.map((l) => l.name);
   const results: LensResult[] = [];
   for (const layer of layers) {
     const { result, reused } = await runOne(api, study, layer);
     results.push(result);
     if (!parsed.values.json) printLens(result, reused);
     if (parsed.values.export) {
-      const out = await api['lens.export'](parseRequest('lens.export', { study, layer, out: parsed.values.export }));
+      const out = await api['lens.export'](parseRequest('lens.export', { study, layer, out: parsed.values.export as string }));
       process.stderr.write(`wrote ${out.files.length} files for ${result.layer} to ${parsed.values.export}\n`);
     }
   }

@@ -1,7 +1,7 @@
 /** The lens as a study job: reuse the cached result while its inputs are unchanged, else compute and store it. */
 import type Database from 'better-sqlite3';
 import { SkeinError } from '../errors.ts';
-import { readRun, findLayer } from '../store/study.ts';
+import { readBinding as readRun, findLayer } from '../store/binding.ts';
 import { readLens, writeLens } from '../store/geometry.ts';
 import { computeLens, defaultLensOptions, lensKey, type ExtraConcept, type LensHooks, type LensOptions, type LensResult } from './lens.ts';
 

@@ -10,7 +10,8 @@ import crypto from 'node:crypto';
 import type Database from 'better-sqlite3';
 import { SkeinError } from '../errors.ts';
 import { mulberry32, shuffle } from '../random.ts';
-import { readRun, findLayer, doneChunks, readLayerChunk, type LayerRow, type RunRow } from '../store/study.ts';
+import { readBinding, findLayer, type LayerRow, type StudyBinding as RunRow } from '../store/binding.ts';
+import { doneChunks, readLayerChunk } from '../store/activations.ts';
 import { readLabelMatrix } from '../score/job.ts';
 import { Progress, type ProgressReport } from '../extract/progress.ts';
 import { createKernels, type Kernels } from './kernels.ts';
@@ -207,7 +208,7 @@ async function readLayerOnce(
 export async function computeLens(db: Database.Database, layerName: string, options: Partial<LensOptions> = {}, hooks: LensHooks = {}, extras: ExtraConcept[] = []): Promise<LensOutput> {
   const started = Date.now();
   const opts: LensOptions = { ...defaultLensOptions, ...options };
-  const run = readRun(db);
+  const run = readBinding(db);
   if (!run) throw new SkeinError({ code: 'study', message: 'This study has no scan yet. Run skein scan first.' });
   const layer = findLayer(db, layerName);
   const chunks = Math.ceil(run.probeCount / run.chunkSize);

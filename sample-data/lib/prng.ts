@@ -1,2 +1,2 @@
-/** The demo build draws from the project's one seeded generator (core/random.ts). */
-export * from '../../core/random.ts';
+/** The demo build draws from Skein's one seeded generator (core/random.ts), so builds repeat exactly. */
+export { mulberry32, uniform, randomInt, gaussian, shuffle, type Rng } from '../../core/random.ts';

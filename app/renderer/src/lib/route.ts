@@ -9,6 +9,7 @@ export type Route =
   | { screen: 'profile'; study: string; layer: string; unit: number }
   | { screen: 'reach'; study: string; label?: string }
   | { screen: 'strata'; study: string }
+  | { screen: 'toll'; study: string; layer?: string }
   | { screen: 'merge'; study: string };
 
 export type Screen = Route['screen'];
@@ -39,6 +40,9 @@ export function parseRoute(hash: string): Route {
     }
     case 'reach':
       if (study) return params.get('label') ? { screen, study, label: params.get('label')! } : { screen, study };
+      break;
+    case 'toll':
+      if (study) return params.get('layer') ? { screen, study, layer: params.get('layer')! } : { screen, study };
       break;
   }
   return { screen: 'desk' };

@@ -1,5 +1,5 @@
 /** Shares of unit kinds in one layer of 'layers.overview' (they sum to 1 for a layer with units). */
-import type { LayerOverviewRow } from '../../../../core/api/screens.ts';
+import type { LayerOverviewRow } from '../../../../core/api/contract.ts';
 
 export const STRATA_KINDS = ['mixed', 'single', 'undriven', 'dense', 'dead'] as const;
 export type StrataKind = (typeof STRATA_KINDS)[number];

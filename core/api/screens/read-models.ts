@@ -1,17 +1,113 @@
 /**
- * Read-only queries the screens need beyond `skein rank` / `skein unit`: the compact unit table, per-label activation
- * histograms, units that move together, one label's reach, per-layer shares and example images.
- * Each takes an open study database; none writes.
+ * Read-models: what the CLI and the screens show, assembled from the store's repositories (no SQL here). `skein rank`
+ * and `skein unit` rows, the compact unit table, per-label activation histograms, units that move together, one
+ * label's reach, per-layer kinds, example images and probe captions. Each takes an open study database; none writes.
  */
-import fs from 'node:fs';
-import path from 'node:path';
 import type Database from 'better-sqlite3';
-import { SkeinError } from '../errors.ts';
-import { readRun, readLayers, findLayer, readUnit, blobToFloats, type LayerRow, type RunRow } from './study.ts';
-import { requireScores, labelNames } from './queries.ts';
+import { SkeinError } from '../../errors.ts';
+import { requireBinding, readLayers, findLayer, labelNames, probesWithLabels, probeCountOfLabel, labelsOfProbes, readExample, type LayerRow } from '../../store/binding.ts';
+import { readUnit, readUnitArgmax, readChunkSample } from '../../store/activations.ts';
+import {
+  requireScores, readScoreOptions, readUnitScores, readUnitScore, readUnitSummaries, readUnitSummary, readUnitsDrivenBy,
+  readLabelStats, readLabelAurocs, unitsByAuroc, scoredUnitCount, type StoredUnitScore,
+} from '../../store/scores.ts';
+import { binOf, pearson } from '../../score/stats.ts';
+import { defaultScoreOptions } from '../../score/unit.ts';
+import { UNIT_KINDS, classifyUnit, type UnitKind } from '../../score/kind.ts';
+import { readExampleImage } from '../../probes/example-image.ts';
 
-/** A unit is called polysemantic on the screens when its concept count is at least this (half-way between one and two effective concepts). */
-export const POLYSEMANTIC_AT = 1.5;
+export { UNIT_KINDS, type UnitKind };
+
+/** One ranked unit as `skein rank --json` prints it (field names fixed: other tools read them). */
+export interface RankRow {
+  layer: string;
+  unit: number;
+  conceptCount: number;
+  selectivity: number;
+  flags: string[];
+  drivers: { label: string; auroc: number; q: number; share: number }[];
+  explanation: { formula: string; iou: number } | null;
+}
+
+export interface LabelStatRow {
+  /** null when no probe has (or every probe has) the label */
+  label: string; n1: number; meanWith: number | null; meanWithout: number | null; auroc: number; topHits: number; p: number; q: number;
+}
+
+export interface TopExample {
+  probe: number; value: number;
+  /** Flat location of the pooled maximum (h*W+w for conv units, t for sequences); null for dense units. */
+  location: number | null;
+  id: string | null; text: string | null; image: string | null;
+}
+
+export interface UnitDetail extends RankRow {
+  rank: number;
+  /** mixed | single | undriven | dead | dense (core/score/kind.ts). */
+  kind: UnitKind;
+  evidence: number;
+  activeFraction: number;
+  mean: number;
+  max: number;
+  topThreshold: number;
+  layerKind: LayerRow['kind'];
+  layerDims: number[];
+  stats: LabelStatRow[];
+  topExamples: TopExample[];
+}
+
+export function formula(labels: number[], names: string[]): string {
+  return labels.map((l) => names[l]).join(' OR ');
+}
+
+const flagWords = (u: { dead: boolean; dense: boolean }): string[] => (u.dead ? ['dead'] : u.dense ? ['dense'] : []);
+
+function toRankRow(s: StoredUnitScore, layerName: string, names: string[]): RankRow {
+  return {
+    layer: layerName,
+    unit: s.unit,
+    conceptCount: s.conceptCount,
+    selectivity: s.selectivity,
+    flags: flagWords(s),
+    drivers: s.drivers.map((d) => ({ label: names[d.label], auroc: d.auroc, q: d.q, share: d.share })),
+    explanation: s.explanation ? { formula: formula(s.explanation.labels, names), iou: s.explanation.iou } : null,
+  };
+}
+
+/** Units most polysemantic first (the stored study-wide ranking). */
+export function rankRows(db: Database.Database, opts: { layer?: string; top?: number; file?: string } = {}): RankRow[] {
+  requireScores(db, opts.file);
+  const layers = new Map(readLayers(db).map((l) => [l.id, l.name]));
+  const names = labelNames(db);
+  const layer = opts.layer ? findLayer(db, opts.layer, opts.file) : null;
+  return readUnitScores(db, { layerId: layer?.id, limit: opts.top }).map((s) => toRankRow(s, layers.get(s.layerId)!, names));
+}
+
+function checkUnit(layer: LayerRow, unit: number, file?: string, where = 'unit'): void {
+  if (!Number.isInteger(unit) || unit < 0 || unit >= layer.units) {
+    throw new SkeinError({ code: 'request', file, where, message: `Layer ${layer.name} has units 0–${layer.units - 1}; ${unit} is out of range.` });
+  }
+}
+
+export function unitDetail(db: Database.Database, layerName: string, unit: number, file?: string): UnitDetail {
+  requireScores(db, file);
+  const binding = requireBinding(db, file);
+  const layer = findLayer(db, layerName, file);
+  checkUnit(layer, unit, file, `unit ${unit}`);
+  const names = labelNames(db);
+  const s = readUnitScore(db, layer.id, unit);
+  const stats = readLabelStats(db, layer.id, unit).map((st) => ({ ...st, label: names[st.label] }));
+  const probes = Array.from(s.topProbes);
+  const locations = layer.kind === 'conv' || layer.kind === 'sequence' ? readUnitArgmax(db, binding, layer.id, unit, probes) : probes.map(() => null);
+  const topExamples = probes.map((p, i) => {
+    const e = readExample(db, p);
+    return { probe: p, value: s.topValues[i], location: locations[i], id: e?.id ?? null, text: e?.text ?? null, image: e?.image ?? null };
+  });
+  return {
+    ...toRankRow(s, layer.name, names), rank: s.rank, kind: classifyUnit(s, scoreThresholds(db).polysemanticAt), evidence: s.evidence,
+    activeFraction: s.activeFraction, mean: s.mean, max: s.max, topThreshold: s.topThreshold, layerKind: layer.kind, layerDims: layer.dims, stats, topExamples,
+  };
+}
 
 /** Bit flags of UnitTable.flags. */
 export const FLAG_DEAD = 1;
@@ -23,7 +119,7 @@ export interface ScoreThresholds { maxQ: number; minAuroc: number; topQuantile: 
 /**
  * Every scored unit as column arrays (one entry per unit, ordered by study rank), so 10^5 units cross the wire
  * without repeating keys. Drivers are CSR: row i's drivers are driverLabel/driverShare[driverOffsets[i] .. driverOffsets[i+1]),
- * largest share first; labels are indices into `labels`, layers indices into `layers`.
+ * largest share first; labels are indices into `labels`, layers indices into `layers`, kinds indices into `kinds`.
  */
 export interface UnitTable {
   layers: { name: string; kind: LayerRow['kind']; units: number; dims: number[] }[];
@@ -37,6 +133,9 @@ export interface UnitTable {
   selectivity: (number | null)[];
   /** FLAG_DEAD | FLAG_DENSE. */
   flags: number[];
+  /** The unit's kind (classified in core/score/kind.ts) as an index into `kinds`. */
+  kind: number[];
+  kinds: UnitKind[];
   driverOffsets: number[];
   driverLabel: number[];
   driverShare: number[];
@@ -47,16 +146,15 @@ function round4(x: number): number | null {
   return Number.isFinite(x) ? Math.round(x * 1e4) / 1e4 : null;
 }
 
-function flagBits(flags: string): number {
-  return (flags.includes('"dead"') ? FLAG_DEAD : 0) | (flags.includes('"dense"') ? FLAG_DENSE : 0);
-}
-
+/**
+ * The thresholds of the stored scores. A study scored before `polysemanticAt` was a stored option was scored with
+ * the value that was then fixed in code, the default.
+ */
 export function scoreThresholds(db: Database.Database): ScoreThresholds {
-  const json = db.prepare(`SELECT options_json FROM score_run WHERE id = 1`).pluck().get() as string | undefined;
-  const o = json ? (JSON.parse(json) as Partial<ScoreThresholds>) : {};
+  const o = readScoreOptions(db) ?? {};
   return {
     maxQ: o.maxQ ?? NaN, minAuroc: o.minAuroc ?? NaN, topQuantile: o.topQuantile ?? NaN,
-    deadFraction: o.deadFraction ?? NaN, denseFraction: o.denseFraction ?? NaN, polysemanticAt: POLYSEMANTIC_AT,
+    deadFraction: o.deadFraction ?? NaN, denseFraction: o.denseFraction ?? NaN, polysemanticAt: o.polysemanticAt ?? defaultScoreOptions.polysemanticAt,
   };
 }
 
@@ -64,37 +162,29 @@ export function unitTable(db: Database.Database, file?: string): UnitTable {
   requireScores(db, file);
   const layers = readLayers(db);
   const layerIndex = new Map(layers.map((l, i) => [l.id, i]));
-  const rows = db.prepare(`SELECT layer_id, unit, rank, concept_count, selectivity, flags, drivers FROM unit_score ORDER BY rank`).raw().all() as
-    [number, number, number, number, number, string, string][];
+  const thresholds = scoreThresholds(db);
+  const kindIndex = new Map(UNIT_KINDS.map((k, i) => [k, i]));
   const t: UnitTable = {
     layers: layers.map((l) => ({ name: l.name, kind: l.kind, units: l.units, dims: l.dims })),
-    labels: labelNames(db), count: rows.length,
-    layer: new Array(rows.length), unit: new Array(rows.length), rank: new Array(rows.length),
-    conceptCount: new Array(rows.length), selectivity: new Array(rows.length), flags: new Array(rows.length),
-    driverOffsets: new Array(rows.length + 1), driverLabel: [], driverShare: [], thresholds: scoreThresholds(db),
+    labels: labelNames(db), count: 0, layer: [], unit: [], rank: [], conceptCount: [], selectivity: [], flags: [], kind: [], kinds: [...UNIT_KINDS],
+    driverOffsets: [0], driverLabel: [], driverShare: [], thresholds,
   };
-  t.driverOffsets[0] = 0;
-  rows.forEach(([layerId, unit, rank, cc, sel, flags, drivers], i) => {
-    t.layer[i] = layerIndex.get(layerId)!;
-    t.unit[i] = unit;
-    t.rank[i] = rank;
-    t.conceptCount[i] = round4(cc);
-    t.selectivity[i] = round4(sel);
-    t.flags[i] = flagBits(flags);
-    for (const d of JSON.parse(drivers) as { label: number; share: number }[]) {
+  for (const s of readUnitSummaries(db)) {
+    t.layer.push(layerIndex.get(s.layerId)!);
+    t.unit.push(s.unit);
+    t.rank.push(s.rank);
+    t.conceptCount.push(round4(s.conceptCount));
+    t.selectivity.push(round4(s.selectivity));
+    t.flags.push((s.dead ? FLAG_DEAD : 0) | (s.dense ? FLAG_DENSE : 0));
+    t.kind.push(kindIndex.get(classifyUnit(s, thresholds.polysemanticAt))!);
+    for (const d of s.drivers) {
       t.driverLabel.push(d.label);
       t.driverShare.push(round4(d.share) ?? 0);
     }
-    t.driverOffsets[i + 1] = t.driverLabel.length;
-  });
+    t.driverOffsets.push(t.driverLabel.length);
+  }
+  t.count = t.unit.length;
   return t;
-}
-
-/** Bin of v among `bins` equal-width bins starting at `min` (the last bin is closed on the right). */
-export function binOf(v: number, min: number, width: number, bins: number): number {
-  if (!(width > 0)) return 0;
-  const b = Math.floor((v - min) / width);
-  return b < 0 ? 0 : b >= bins ? bins - 1 : b;
 }
 
 export interface UnitDistributions {
@@ -117,15 +207,14 @@ export interface UnitDistributions {
  */
 export function unitDistributions(db: Database.Database, layerName: string, unit: number, opts: { bins?: number; labels?: string[]; maxLabels?: number; file?: string } = {}): UnitDistributions {
   requireScores(db, opts.file);
-  const run = readRun(db) as RunRow;
+  const binding = requireBinding(db, opts.file);
   const layer = findLayer(db, layerName, opts.file);
   checkUnit(layer, unit, opts.file);
   const names = labelNames(db);
   const bins = opts.bins ?? 40;
   const maxLabels = opts.maxLabels ?? 6;
-  const driverRow = db.prepare(`SELECT drivers FROM unit_score WHERE layer_id = ? AND unit = ?`).pluck().get(layer.id, unit) as string;
-  const driverIds = (JSON.parse(driverRow) as { label: number }[]).map((d) => d.label);
-  const auroc = new Map((db.prepare(`SELECT label, auroc FROM unit_label WHERE layer_id = ? AND unit = ? ORDER BY auroc DESC`).raw().all(layer.id, unit) as [number, number][]));
+  const driverIds = readUnitScore(db, layer.id, unit).drivers.map((d) => d.label);
+  const auroc = new Map(readLabelAurocs(db, layer.id, unit));
   let chosen: number[];
   if (opts.labels?.length) {
     chosen = opts.labels.map((name, i) => {
@@ -138,7 +227,7 @@ export function unitDistributions(db: Database.Database, layerName: string, unit
     for (const id of auroc.keys()) if (chosen.length < maxLabels && !chosen.includes(id)) chosen.push(id);
     chosen = chosen.slice(0, Math.max(maxLabels, driverIds.length));
   }
-  const values = readUnit(db, run, layer.id, unit);
+  const values = readUnit(db, binding, layer.id, unit);
   let min = Infinity;
   let max = -Infinity;
   for (let i = 0; i < values.length; i++) {
@@ -158,42 +247,18 @@ export function unitDistributions(db: Database.Database, layerName: string, unit
   const counts = chosen.map(() => new Array(bins).fill(0));
   const n = chosen.map(() => 0);
   const atFloor = chosen.map(() => 0);
-  if (chosen.length) {
-    const rows = db.prepare(`SELECT probe, label FROM probe_label WHERE label IN (${chosen.map(() => '?').join(',')})`).raw().iterate(...chosen) as IterableIterator<[number, number]>;
-    for (const [probe, label] of rows) {
-      const s = slot.get(label)!;
-      if (binIndex[probe] === FLOOR) atFloor[s]++;
-      else counts[s][binIndex[probe]]++;
-      n[s]++;
-    }
+  for (const [probe, label] of probesWithLabels(db, chosen)) {
+    const s = slot.get(label)!;
+    if (binIndex[probe] === FLOOR) atFloor[s]++;
+    else counts[s][binIndex[probe]]++;
+    n[s]++;
   }
   return {
-    layer: layer.name, unit, probes: run.probeCount, floor: min,
+    layer: layer.name, unit, probes: binding.probeCount, floor: min,
     edges: Array.from({ length: bins + 1 }, (_, i) => (i === bins ? max : min + i * width)),
     all, allAtFloor,
     labels: chosen.map((id, i) => ({ label: names[id], n: n[i], counts: counts[i], atFloor: atFloor[i], auroc: auroc.get(id) ?? NaN, isDriver: driverIds.includes(id) })),
   };
-}
-
-function checkUnit(layer: LayerRow, unit: number, file?: string): void {
-  if (!Number.isInteger(unit) || unit < 0 || unit >= layer.units) {
-    throw new SkeinError({ code: 'request', file, where: 'unit', message: `Layer ${layer.name} has units 0–${layer.units - 1}; ${unit} is out of range.` });
-  }
-}
-
-/** Pearson correlation of two equal-length samples given their means (Pearson 1895); NaN when either is constant. */
-export function pearson(a: Float32Array, meanA: number, b: Float32Array, meanB: number, n: number): number {
-  let sab = 0;
-  let saa = 0;
-  let sbb = 0;
-  for (let i = 0; i < n; i++) {
-    const da = a[i] - meanA;
-    const db = b[i] - meanB;
-    sab += da * db;
-    saa += da * da;
-    sbb += db * db;
-  }
-  return saa > 0 && sbb > 0 ? sab / Math.sqrt(saa * sbb) : NaN;
 }
 
 /** Chunks spread evenly over [0, chunks): the fixed probe sample of similarUnits. */
@@ -221,27 +286,25 @@ export interface SimilarUnits {
  */
 export function similarUnits(db: Database.Database, layerName: string, unit: number, opts: { top?: number; sampleProbes?: number; file?: string } = {}): SimilarUnits {
   requireScores(db, opts.file);
-  const run = readRun(db) as RunRow;
+  const binding = requireBinding(db, opts.file);
   const layer = findLayer(db, layerName, opts.file);
   checkUnit(layer, unit, opts.file);
   const top = opts.top ?? 12;
   const sampleProbes = opts.sampleProbes ?? 4096;
-  const chunkCount = Math.ceil(run.probeCount / run.chunkSize);
-  const chunks = sampleChunks(chunkCount, Math.ceil(sampleProbes / run.chunkSize));
-  const lengths = chunks.map((c) => Math.min(run.chunkSize, run.probeCount - c * run.chunkSize));
+  const chunkCount = Math.ceil(binding.probeCount / binding.chunkSize);
+  const chunks = sampleChunks(chunkCount, Math.ceil(sampleProbes / binding.chunkSize));
+  const lengths = chunks.map((c) => Math.min(binding.chunkSize, binding.probeCount - c * binding.chunkSize));
   const inChunks = lengths.reduce((a, b) => a + b, 0);
   const stride = Math.max(1, Math.ceil(inChunks / sampleProbes));
   const n = Math.ceil(inChunks / stride);
-  const placeholders = chunks.map(() => '?').join(',');
-  const stmt = db.prepare(`SELECT unit, chunk, vals FROM activation WHERE layer_id = ? AND chunk IN (${placeholders}) ORDER BY unit, chunk`).raw();
 
   // Concatenates the chunks of one unit and keeps every stride-th probe.
-  const gather = (parts: Map<number, Buffer>, out: Float32Array): number => {
+  const gather = (parts: Map<number, Float32Array>, out: Float32Array): number => {
     let k = 0;
     let pos = 0;
     let sum = 0;
     for (const c of chunks) {
-      const v = blobToFloats(parts.get(c)!);
+      const v = parts.get(c)!;
       for (let i = 0; i < v.length; i++, pos++) {
         if (pos % stride === 0) { out[k++] = v[i]; sum += v[i]; }
       }
@@ -249,8 +312,8 @@ export function similarUnits(db: Database.Database, layerName: string, unit: num
     return sum / n;
   };
   const target = new Float32Array(n);
-  const targetParts = new Map<number, Buffer>();
-  for (const [, c, vals] of db.prepare(`SELECT unit, chunk, vals FROM activation WHERE layer_id = ? AND unit = ? AND chunk IN (${placeholders})`).raw().iterate(layer.id, unit, ...chunks) as IterableIterator<[number, number, Buffer]>) targetParts.set(c, vals);
+  const targetParts = new Map<number, Float32Array>();
+  for (const { chunk, values } of readChunkSample(db, layer.id, chunks, unit)) targetParts.set(chunk, values);
   if (targetParts.size !== chunks.length) throw new SkeinError({ code: 'study', file: opts.file, where: `layer ${layer.name}`, message: 'The scan of this layer is incomplete. Run the scan again to finish it.' });
   const targetMean = gather(targetParts, target);
   let constant = true;
@@ -260,26 +323,25 @@ export function similarUnits(db: Database.Database, layerName: string, unit: num
   if (!constant) {
     const other = new Float32Array(n);
     let current = -1;
-    let parts = new Map<number, Buffer>();
+    let parts = new Map<number, Float32Array>();
     const flush = () => {
       if (current < 0 || current === unit || parts.size !== chunks.length) return;
       const r = pearson(target, targetMean, other, gather(parts, other), n);
       if (Number.isFinite(r)) found.push({ unit: current, r });
     };
-    for (const [u, c, vals] of stmt.iterate(layer.id, ...chunks) as IterableIterator<[number, number, Buffer]>) {
+    for (const { unit: u, chunk, values } of readChunkSample(db, layer.id, chunks)) {
       if (u !== current) { flush(); current = u; parts = new Map(); }
-      parts.set(c, vals);
+      parts.set(chunk, values);
     }
     flush();
   }
   found.sort((a, b) => b.r - a.r || a.unit - b.unit);
   const names = labelNames(db);
-  const info = db.prepare(`SELECT concept_count, drivers FROM unit_score WHERE layer_id = ? AND unit = ?`).raw();
   return {
-    layer: layer.name, unit, sample: n, probes: run.probeCount, constant,
+    layer: layer.name, unit, sample: n, probes: binding.probeCount, constant,
     units: found.slice(0, top).map(({ unit: u, r }) => {
-      const [cc, drivers] = info.get(layer.id, u) as [number, string];
-      return { unit: u, r, conceptCount: cc, drivers: (JSON.parse(drivers) as { label: number }[]).slice(0, 3).map((d) => names[d.label]) };
+      const s = readUnitSummary(db, layer.id, u)!;
+      return { unit: u, r, conceptCount: s.conceptCount, drivers: s.drivers.slice(0, 3).map((d) => names[d.label]) };
     }),
   };
 }
@@ -316,32 +378,23 @@ export function conceptReach(db: Database.Database, labelName: string, opts: { t
   if (id < 0) throw new SkeinError({ code: 'request', file: opts.file, where: 'label', message: `No label "${labelName}" in this study. Labels: ${names.slice(0, 12).join(', ')}${names.length > 12 ? ', …' : ''}.` });
   const layers = new Map(readLayers(db).map((l) => [l.id, l.name]));
   const top = opts.top ?? 500;
-  const rows = db.prepare(`SELECT s.layer_id, s.unit, s.concept_count, s.drivers, l.auroc, l.q FROM unit_score s
-      JOIN unit_label l ON l.layer_id = s.layer_id AND l.unit = s.unit AND l.label = ?
-      WHERE EXISTS (SELECT 1 FROM json_each(s.drivers) j WHERE json_extract(j.value, '$.label') = ?)`).raw().all(id, id) as [number, number, number, string, number, number][];
-  const drivers: ConceptReachRow[] = rows.map(([layerId, unit, cc, json, auroc, q]) => {
-    const ds = JSON.parse(json) as { label: number; share: number }[];
-    const mine = ds.find((d) => d.label === id)!;
+  const drivers: ConceptReachRow[] = readUnitsDrivenBy(db, id).map((s) => {
+    const mine = s.drivers.find((d) => d.label === id)!;
     return {
-      layer: layers.get(layerId)!, unit, auroc, q, share: mine.share, onlyDriver: ds.length === 1, driverCount: ds.length,
-      conceptCount: cc, otherDrivers: ds.filter((d) => d.label !== id).map((d) => names[d.label]),
+      layer: layers.get(s.layerId)!, unit: s.unit, auroc: s.auroc, q: s.q, share: mine.share, onlyDriver: s.drivers.length === 1, driverCount: s.drivers.length,
+      conceptCount: s.conceptCount, otherDrivers: s.drivers.filter((d) => d.label !== id).map((d) => names[d.label]),
     };
   });
   drivers.sort((a, b) => b.share - a.share || b.auroc - a.auroc);
   const driverKeys = new Set(drivers.map((d) => `${d.layer}\u0000${d.unit}`));
   const nearMisses: ConceptReach['nearMisses'] = [];
-  for (const [layerId, unit, auroc, q, topHits] of db.prepare(`SELECT layer_id, unit, auroc, q, top_hits FROM unit_label WHERE label = ? ORDER BY auroc DESC`).raw().iterate(id) as IterableIterator<[number, number, number, number, number]>) {
-    if (nearMisses.length >= 20) break;
-    if (!driverKeys.has(`${layers.get(layerId)}\u0000${unit}`)) nearMisses.push({ layer: layers.get(layerId)!, unit, auroc, q, topHits });
-  }
   const aurocHistogram = new Array(20).fill(0);
-  for (const a of db.prepare(`SELECT auroc FROM unit_label WHERE label = ?`).pluck().iterate(id) as IterableIterator<number>) {
-    if (Number.isFinite(a)) aurocHistogram[binOf(a, 0, 0.05, 20)]++;
+  for (const { layerId, unit, auroc, q, topHits } of unitsByAuroc(db, id)) {
+    if (nearMisses.length < 20 && !driverKeys.has(`${layers.get(layerId)}\u0000${unit}`)) nearMisses.push({ layer: layers.get(layerId)!, unit, auroc, q, topHits });
+    if (Number.isFinite(auroc)) aurocHistogram[binOf(auroc, 0, 0.05, 20)]++;
   }
   return {
-    label: labelName,
-    probes: db.prepare(`SELECT count(*) FROM probe_label WHERE label = ?`).pluck().get(id) as number,
-    totalUnits: db.prepare(`SELECT count(*) FROM unit_score`).pluck().get() as number,
+    label: labelName, probes: probeCountOfLabel(db, id), totalUnits: scoredUnitCount(db),
     drivers: drivers.slice(0, top), driverOf: drivers.length, onlyDriverOf: drivers.filter((d) => d.onlyDriver).length,
     nearMisses, aurocHistogram,
   };
@@ -352,9 +405,9 @@ export interface LayerOverviewRow {
   dead: number; dense: number;
   /** Not dead or dense and no label passes the driver test. */
   undriven: number;
-  /** Concept count in (0, POLYSEMANTIC_AT). */
+  /** Concept count in (0, polysemanticAt). */
   single: number;
-  /** Concept count ≥ POLYSEMANTIC_AT. */
+  /** Concept count ≥ polysemanticAt. */
   polysemantic: number;
   meanConceptCount: number | null;
   maxConceptCount: number;
@@ -364,69 +417,47 @@ export interface LayerOverviewRow {
 
 export interface LayerOverview { polysemanticAt: number; edges: number[]; layers: LayerOverviewRow[]; thresholds: ScoreThresholds }
 
-/** Per layer: how concept counts spread and what share of units is polysemantic, dead or dense. */
+/** Per layer: how concept counts spread and how many units are of each kind (core/score/kind.ts). */
 export function layerOverview(db: Database.Database, file?: string): LayerOverview {
   requireScores(db, file);
   const layers = readLayers(db);
-  const rows = db.prepare(`SELECT layer_id, concept_count, flags FROM unit_score`).raw().all() as [number, number, string][];
+  const thresholds = scoreThresholds(db);
+  const rows = [...readUnitSummaries(db)];
   let globalMax = 0;
-  for (const [, cc] of rows) if (cc > globalMax) globalMax = cc;
+  for (const s of rows) if (s.conceptCount > globalMax) globalMax = s.conceptCount;
   const width = 0.25;
   const bins = Math.max(8, Math.ceil(globalMax / width));
   const byLayer = new Map(layers.map((l) => [l.id, {
     name: l.name, op: l.op, kind: l.kind, units: l.units, dead: 0, dense: 0, undriven: 0, single: 0, polysemantic: 0,
     meanConceptCount: null as number | null, maxConceptCount: 0, histogram: new Array(bins).fill(0), sum: 0, driven: 0,
   }]));
-  for (const [layerId, cc, flags] of rows) {
-    const s = byLayer.get(layerId)!;
-    const f = flagBits(flags);
-    if (f & FLAG_DEAD) s.dead++;
-    if (f & FLAG_DENSE) s.dense++;
-    if (cc >= POLYSEMANTIC_AT) s.polysemantic++;
-    else if (cc > 0) s.single++;
-    else if (!f) s.undriven++;
+  const field: Record<UnitKind, 'polysemantic' | 'single' | 'undriven' | 'dead' | 'dense'> = { mixed: 'polysemantic', single: 'single', undriven: 'undriven', dead: 'dead', dense: 'dense' };
+  for (const u of rows) {
+    const s = byLayer.get(u.layerId)!;
+    s[field[classifyUnit(u, thresholds.polysemanticAt)]]++;
+    const cc = u.conceptCount;
     if (cc > 0) { s.sum += cc; s.driven++; }
     if (cc > s.maxConceptCount) s.maxConceptCount = cc;
     s.histogram[binOf(cc, 0, width, bins)]++;
   }
   return {
-    polysemanticAt: POLYSEMANTIC_AT, thresholds: scoreThresholds(db),
+    polysemanticAt: thresholds.polysemanticAt, thresholds,
     edges: Array.from({ length: bins + 1 }, (_, i) => i * width),
     layers: [...byLayer.values()].map(({ sum, driven, ...s }) => ({ ...s, meanConceptCount: driven ? sum / driven : null })),
   };
 }
 
-const IMAGE_TYPES: Record<string, string> = { '.png': 'image/png', '.jpg': 'image/jpeg', '.jpeg': 'image/jpeg', '.gif': 'image/gif', '.webp': 'image/webp', '.bmp': 'image/bmp' };
-const MAX_IMAGE_BYTES = 16 << 20;
-
-/** True when `target` (symlinks resolved) lies inside `dir`. */
-function liesInside(dir: string, target: string): boolean {
-  const rel = path.relative(fs.realpathSync(dir), fs.realpathSync(target));
-  return rel !== '' && !rel.startsWith('..') && !path.isAbsolute(rel);
-}
-
 /** The image of one probe as a data: URL, read from the probe-set folder; refuses any path leaving that folder. */
 export function exampleImage(db: Database.Database, probe: number, file?: string): { dataUrl: string; mime: string; bytes: number } {
-  const run = readRun(db);
-  if (!run) throw new SkeinError({ code: 'study', file, message: 'This study has no scan yet. Start a scan into it.' });
-  const row = db.prepare(`SELECT image FROM example WHERE probe = ?`).get(probe) as { image: string | null } | undefined;
-  if (!row?.image) throw new SkeinError({ code: 'request', file, where: 'probe', message: `Probe ${probe} has no image in this study's examples.` });
-  const abs = path.resolve(run.probesDir, row.image);
-  const mime = IMAGE_TYPES[path.extname(abs).toLowerCase()];
-  const lexical = path.relative(path.resolve(run.probesDir), abs);
-  if (lexical.startsWith('..') || path.isAbsolute(lexical)) throw new SkeinError({ code: 'probes', file: abs, where: `probe ${probe}`, message: `This example image lies outside the probe-set folder ${run.probesDir}; Skein shows only images inside it.` });
-  if (!fs.existsSync(abs)) throw new SkeinError({ code: 'probes', file: abs, where: `probe ${probe}`, message: 'The example image is missing from the probe-set folder. Restore the probe set where the study was scanned.' });
-  if (!liesInside(run.probesDir, abs)) throw new SkeinError({ code: 'probes', file: abs, where: `probe ${probe}`, message: `This example image lies outside the probe-set folder ${run.probesDir}; Skein shows only images inside it.` });
-  if (!mime) throw new SkeinError({ code: 'probes', file: abs, where: `probe ${probe}`, message: `Skein shows PNG, JPEG, GIF, WebP or BMP example images; this is "${path.extname(abs)}".` });
-  const size = fs.statSync(abs).size;
-  if (size > MAX_IMAGE_BYTES) throw new SkeinError({ code: 'probes', file: abs, where: `probe ${probe}`, message: `The example image is ${Math.round(size / 1048576)} MiB; Skein shows images up to 16 MiB. Use smaller thumbnails in the probe set.` });
-  const bytes = fs.readFileSync(abs);
-  return { dataUrl: `data:${mime};base64,${bytes.toString('base64')}`, mime, bytes: bytes.length };
+  const binding = requireBinding(db, file);
+  const image = readExample(db, probe)?.image;
+  if (!image) throw new SkeinError({ code: 'request', file, where: 'probe', message: `Probe ${probe} has no image in this study's examples.` });
+  return readExampleImage(binding.probesDir, image, probe);
 }
 
 /** Label names of each given probe (in the given order). */
 export function probeLabels(db: Database.Database, probes: number[]): string[][] {
   const names = labelNames(db);
-  const stmt = db.prepare(`SELECT label FROM probe_label WHERE probe = ? ORDER BY label`).pluck();
-  return probes.map((p) => (stmt.all(p) as number[]).map((l) => names[l]));
+  return labelsOfProbes(db, probes).map((ls) => ls.map((l) => names[l]));
 }
+
