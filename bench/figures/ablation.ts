@@ -23,6 +23,8 @@ const BATCH = 512;
 export interface AblationCase {
   model: string; layer: string; units: number; probes: number; metric: string;
   plainSeconds: number; perUnitSeconds: number; ratio: number;
+  /** The same ratio on CPU seconds of this process (less sensitive to other work on a shared machine). */
+  plainCpuSeconds: number; perUnitCpuSeconds: number; cpuRatio: number;
   /** Upstream pass + baseline, once per layer and setup. */
   oneOffSeconds: number;
   /** Of one unit's time: the downstream run, and the per-label statistics (Welch tests, BH, one bootstrap interval). */
@@ -36,27 +38,31 @@ export interface AblationFigure {
   unitsGrowth: { layer: string; units: number; seconds: number }[];
 }
 
-/** One plain inference pass over the first `count` probes, batch 512, model outputs only (median of reps). */
-async function plainPass(modelFile: string, probesDir: string, count: number, reps: number): Promise<number> {
+/** One plain inference pass over the first `count` probes, batch 512, model outputs only (median of reps): wall and CPU seconds. */
+async function plainPass(modelFile: string, probesDir: string, count: number, reps: number): Promise<{ wall: number; cpu: number }> {
   const probes = openProbeSet(probesDir);
   const input = probes.inputs[0];
   const per = input.rowShape.reduce((a, b) => a * b, 1);
   const rows = input.readRows(0, count) as Float32Array;
   const session = await createSession(fs.readFileSync(modelFile));
   const times: number[] = [];
+  const cpus: number[] = [];
   try {
     for (let r = 0; r < reps; r++) {
       const t = performance.now();
+      const c = process.cpuUsage();
       for (let off = 0; off < count; off += BATCH) {
         const n = Math.min(BATCH, count - off);
         await session.run({ [input.name]: new ort.Tensor('float32', rows.subarray(off * per, (off + n) * per), [n, ...input.rowShape]) });
       }
       times.push((performance.now() - t) / 1000);
+      const u = process.cpuUsage(c);
+      cpus.push((u.user + u.system) / 1e6);
     }
   } finally {
     await session.release();
   }
-  return median(times);
+  return { wall: median(times), cpu: median(cpus) };
 }
 
 async function measureLayer(study: string, model: string, probesDir: string, name: string, layer: string, reps: number, sample?: number): Promise<AblationCase> {
@@ -66,12 +72,17 @@ async function measureLayer(study: string, model: string, probesDir: string, nam
     // Interleaved, fresh each time (nothing reused), medians: the machine is shared and noisy.
     const plain: number[] = [];
     const perUnit: number[] = [];
+    const plainCpu: number[] = [];
+    const perUnitCpu: number[] = [];
     let s!: Awaited<ReturnType<typeof ablateLayer>>;
     for (let r = 0; r < reps; r++) {
-      plain.push(await plainPass(model, probesDir, probes, 1));
+      const p = await plainPass(model, probesDir, probes, 1);
+      plain.push(p.wall);
+      plainCpu.push(p.cpu);
       clearAblations(db);
       s = await ablateLayer(db, { model, layer, mode: 'zero', sample });
       perUnit.push(s.perUnitSeconds);
+      perUnitCpu.push(s.perUnitCpuSeconds);
     }
     const plainSeconds = median(plain);
     const perUnitSeconds = median(perUnit);
@@ -90,7 +101,8 @@ async function measureLayer(study: string, model: string, probesDir: string, nam
     await a.release();
     return {
       model: name, layer, units: s.run.units, probes, metric: s.run.metric, plainSeconds, perUnitSeconds,
-      ratio: perUnitSeconds / plainSeconds, oneOffSeconds: oneOff, forwardSeconds: fwd / units / 1000, statsSeconds: stats / units / 1000,
+      ratio: perUnitSeconds / plainSeconds,
+      plainCpuSeconds: median(plainCpu), perUnitCpuSeconds: median(perUnitCpu), cpuRatio: median(perUnitCpu) / median(plainCpu), oneOffSeconds: oneOff, forwardSeconds: fwd / units / 1000, statsSeconds: stats / units / 1000,
     };
   } finally {
     db.close();
@@ -139,10 +151,14 @@ export async function ablationFigure(work: string, sizes: { probes: number; reps
   try {
     const layerUnits = fc;
     for (const k of [layerUnits / 4, layerUnits / 2, layerUnits]) {
-      clearAblations(db);
-      const t = performance.now();
-      await ablateLayer(db, { model: modelFile, layer: 'r3', mode: 'zero' }, {}, Array.from({ length: k }, (_, u) => u));
-      unitsGrowth.push({ layer: 'r3', units: k, seconds: (performance.now() - t) / 1000 });
+      const times: number[] = [];
+      for (let r = 0; r < sizes.reps; r++) {
+        clearAblations(db);
+        const t = performance.now();
+        await ablateLayer(db, { model: modelFile, layer: 'r3', mode: 'zero' }, {}, Array.from({ length: k }, (_, u) => u));
+        times.push((performance.now() - t) / 1000);
+      }
+      unitsGrowth.push({ layer: 'r3', units: k, seconds: median(times) });
       log(`units growth r3 @ ${k}: ${JSON.stringify(unitsGrowth.at(-1))}`);
     }
   } finally {

@@ -58,7 +58,11 @@ export async function ablateUnit(db: Database.Database, setup: AblationSetup, un
   }
 }
 
-export interface LayerSummary { run: AblationRunRow; computed: number; reused: number; seconds: number; perUnitSeconds: number }
+export interface LayerSummary {
+  run: AblationRunRow; computed: number; reused: number; seconds: number;
+  /** Wall and CPU (this process, all threads) seconds per computed unit, the loop alone (not the one-off passes). */
+  perUnitSeconds: number; perUnitCpuSeconds: number;
+}
 
 /** Ablates every unit of the layer (or `units`), one at a time, skipping those already stored for this setup. */
 export async function ablateLayer(db: Database.Database, setup: AblationSetup, hooks: AblateHooks = {}, units?: number[], studyFile?: string): Promise<LayerSummary> {
@@ -73,6 +77,7 @@ export async function ablateLayer(db: Database.Database, setup: AblationSetup, h
     const progress = new Progress('ablate', all.length, hooks.onProgress, all.length - todo.length);
     const opts: CostOptions = { reps: BULK_REPS, intervals: 'largest', seed: a.ctx.setup.seed };
     const loopStart = performance.now();
+    const loopCpu = process.cpuUsage();
     let pending: Omit<AblationUnitRow, 'at'>[] = [];
     let lastCommit = performance.now();
     const commit = () => { writeAblationUnits(db, pending); pending = []; lastCommit = performance.now(); };
@@ -92,7 +97,9 @@ export async function ablateLayer(db: Database.Database, setup: AblationSetup, h
     }
     progress.finish();
     const loop = (performance.now() - loopStart) / 1000;
-    return { run: runRow(db, a), computed: todo.length, reused: all.length - todo.length, seconds: (performance.now() - started) / 1000, perUnitSeconds: todo.length ? loop / todo.length : 0 };
+    const cpu = process.cpuUsage(loopCpu);
+    const loopCpuSeconds = (cpu.user + cpu.system) / 1e6;
+    return { run: runRow(db, a), computed: todo.length, reused: all.length - todo.length, seconds: (performance.now() - started) / 1000, perUnitSeconds: todo.length ? loop / todo.length : 0, perUnitCpuSeconds: todo.length ? loopCpuSeconds / todo.length : 0 };
   } finally {
     await a.release();
   }

@@ -217,11 +217,19 @@ export class Ablator {
       const count = Math.min(this.batch, n - off);
       const rows = this.fixed ?? count;
       // Replace the units in the fed tensor itself (only their slices), run, then put the cached values back.
-      const saved = new Float64Array(count * slots);
+      // Contiguous slices (a conv map, a dense value) go through fill/set: a per-element loop cost more than the run.
+      const saved = new (target.constructor as { new (k: number): Float32Array | Float64Array })(count * slots);
       let k = 0;
       for (let p = off; p < off + count; p++) {
         for (const e of edits) {
-          for (let j = 0, at = p * per + e.start; j < e.count; j++, at += e.step) { saved[k++] = target[at]; target[at] = e.value; }
+          const at = p * per + e.start;
+          if (e.step === 1) {
+            saved.set(target.subarray(at, at + e.count), k);
+            target.fill(e.value, at, at + e.count);
+            k += e.count;
+          } else {
+            for (let j = 0, q = at; j < e.count; j++, q += e.step) { saved[k++] = target[q]; target[q] = e.value; }
+          }
         }
       }
       try {
@@ -245,7 +253,13 @@ export class Ablator {
         k = 0;
         for (let p = off; p < off + count; p++) {
           for (const e of edits) {
-            for (let j = 0, at = p * per + e.start; j < e.count; j++, at += e.step) target[at] = saved[k++];
+            const at = p * per + e.start;
+            if (e.step === 1) {
+              target.set(saved.subarray(k, k + e.count), at);
+              k += e.count;
+            } else {
+              for (let j = 0, q = at; j < e.count; j++, q += e.step) target[q] = saved[k++];
+            }
           }
         }
       }
