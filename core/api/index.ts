@@ -17,6 +17,7 @@ import { createFileApi } from './files.ts';
 import { createReviewApi } from './review.ts';
 import { checkPaths, type ApiContext } from './context.ts';
 import { createAblationApi } from './ablation.ts';
+import { createLensApi } from './lens.ts';
 import { requests, type Method, type Request, type JobState, type ScanResult, type StudySummary, type ProbeSummary, type ExportResult } from './contract.ts';
 
 export { requests };
@@ -151,7 +152,7 @@ export function createApi(ctx: ApiContext = {}) {
       return { file: path.resolve(r.out), rows: binding.probeCount, columns: layer.units };
     }),
   };
-  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx), ...createAblationApi(ctx) };
+  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx), ...createAblationApi(ctx), ...createLensApi(ctx) };
 }
 
 export type Api = ReturnType<typeof createApi>;

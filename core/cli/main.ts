@@ -9,6 +9,7 @@ import type { RankRow, UnitDetail, ModelInfo, ProgressReport } from '../api/cont
 import { REVIEW_HELP, reviewCommand, reportCommand } from './review.ts';
 import { UsageError, parse, intOption, unitArg } from './args.ts';
 import { ABLATE_HELP, ablateCommand } from './ablate.ts';
+import { LENS_HELP, lensCommand } from './lens.ts';
 
 const HELP = `skein — find the polysemantic units of an ONNX model on a labelled probe set
 
@@ -21,6 +22,7 @@ const HELP = `skein — find the polysemantic units of an ONNX model on a labell
   skein demo [--study file]      scan the bundled demo and print the ranked units
 ${REVIEW_HELP}
 ${ABLATE_HELP}
+${LENS_HELP}
 
 Scores are statistical hypotheses about the model on this probe set, not proof: check a unit before pruning or
 trusting it.`;
@@ -161,6 +163,8 @@ export async function main(argv: string[]): Promise<number> {
         return await reviewCommand(rest, api);
       case 'report':
         return await reportCommand(rest, api);
+      case 'lens':
+        return await lensCommand(rest, api);
       case 'ablate':
         return await ablateCommand(rest, api);
       case undefined:

@@ -160,6 +160,17 @@ export const migrations: string[] = [
     dense = EXISTS (SELECT 1 FROM json_each(unit_score.flags) WHERE value = 'dense');
   ALTER TABLE unit_score DROP COLUMN flags;
   `,
+  // 4 → 5: the superposition lens (core/geometry), cached per layer and reused while `key` (a hash of everything
+  // it depends on) matches; deleted with its layer.
+  `
+  CREATE TABLE lens (
+    layer_id INTEGER PRIMARY KEY REFERENCES layer(id) ON DELETE CASCADE,
+    key TEXT NOT NULL,
+    result_json TEXT NOT NULL,            -- the figures (core/geometry/lens.ts LensResult)
+    directions BLOB NOT NULL,             -- float32 [concepts × units], row-major: the concept directions
+    computed_at TEXT NOT NULL
+  );
+  `,
 ];
 
 export const SCHEMA_VERSION = migrations.length;
