@@ -3,9 +3,11 @@ import type Database from 'better-sqlite3';
 import { SkeinError } from '../errors.ts';
 import { readRun, readLayers, readUnit, doneChunks, floatsToBlob, now, type LayerRow, type RunRow } from '../store/study.ts';
 import { labelNames } from '../store/queries.ts';
+import { clearDriverTables, writeLayerNull, writeUnitDrivers, type DriverRecord } from '../store/drivers.ts';
+import { mulberry32 } from './random.ts';
 import { Progress, type ProgressReport } from '../extract/progress.ts';
 import { scoreUnitPartial, finishLayer, rankUnits, buildRelatedness, defaultScoreOptions, createScratch } from './index.ts';
-import type { LabelMatrix, Relatedness, ScoreOptions, UnitScore } from './types.ts';
+import type { LabelMatrix, Relatedness, ScoreOptions, UnitPartial, UnitScore } from './types.ts';
 import type { ConceptRow } from '../probes/types.ts';
 
 export interface ScoreJobHooks {
@@ -38,9 +40,46 @@ export function readConcepts(db: Database.Database): ConceptRow[] | null {
   return rows.map((r) => ({ label: r.label, group: r.grp, parent: r.parent ?? undefined, description: r.description ?? undefined }));
 }
 
+/** Bumped when the scoring method changes, so stored scores of an older method are recomputed. */
+const SCORE_MODEL_VERSION = 2;
+
+/** A unit is called mixed when its concept count is at least this (the layer overview's threshold). */
+export const MIXED_AT = 1.5;
+/** Units per layer scored again with shuffled labels for the null baseline (all units when the layer is smaller). */
+export const NULL_UNITS = 64;
+export const NULL_SEED = 20240917;
+
+/** The probe labels moved to other probes by one seeded permutation (the shuffled-label null keeps label counts and co-occurrence). */
+export function shuffledLabels(labels: LabelMatrix, seed: number): LabelMatrix {
+  const n = labels.count;
+  const perm = Int32Array.from({ length: n }, (_, i) => i);
+  const random = mulberry32(seed);
+  for (let i = n - 1; i > 0; i--) { // Fisher–Yates (Knuth, TAOCP vol. 2, Algorithm P)
+    const j = Math.floor(random() * (i + 1));
+    const t = perm[i]; perm[i] = perm[j]; perm[j] = t;
+  }
+  const offsets = new Int32Array(n + 1);
+  for (let i = 0; i < n; i++) offsets[i + 1] = offsets[i] + labels.labelOffsets[perm[i] + 1] - labels.labelOffsets[perm[i]];
+  const ids = new Int32Array(offsets[n]);
+  for (let i = 0; i < n; i++) ids.set(labels.labelIds.subarray(labels.labelOffsets[perm[i]], labels.labelOffsets[perm[i] + 1]), offsets[i]);
+  return { count: n, labels: labels.labels, labelOffsets: offsets, labelIds: ids };
+}
+
+/** Which units of a layer the null rescores: an evenly spaced sample of NULL_UNITS (all when fewer). */
+export function nullSample(units: number): Set<number> {
+  const take = Math.min(units, NULL_UNITS);
+  return new Set(Array.from({ length: take }, (_, i) => Math.floor((i * units) / take)));
+}
+
+export function isMixed(score: UnitScore): boolean {
+  return score.flags.length === 0 && score.conceptCount >= MIXED_AT;
+}
+
+export interface LayerNull { unitsSampled: number; mixedSampled: number; mixedExpected: number; mixedReal: number }
+
 function scoreKey(run: RunRow, layers: LayerRow[], opts: ScoreOptions, override: string | null): string {
   const h = crypto.createHash('sha256');
-  h.update(JSON.stringify({ m: run.modelFp, p: run.probesFp, l: layers.map((l) => [l.name, l.pool, l.units]), opts, override }));
+  h.update(JSON.stringify({ v: SCORE_MODEL_VERSION, m: run.modelFp, p: run.probesFp, l: layers.map((l) => [l.name, l.pool, l.units]), opts, override }));
   return h.digest('hex');
 }
 
@@ -100,38 +139,76 @@ function* scoreSteps(db: Database.Database, options: Partial<ScoreOptions>, hook
   // One scratch for the study: label counts and N-sized buffers are built once, not per unit.
   const scratch = createScratch(labels);
   const scored: { layer: LayerRow; score: UnitScore; layerOrder: number }[] = [];
+  const shuffled = shuffledLabels(labels, NULL_SEED);
+  const nullScratch = createScratch(shuffled);
+  const nulls = new Map<number, LayerNull>();
   for (const [layerOrder, layer] of layers.entries()) {
     const partials = [];
+    const nullPartials: UnitPartial[] = [];
+    const sample = nullSample(layer.units);
     for (let u = 0; u < layer.units; u++) {
       if (hooks.signal?.aborted) throw new SkeinError({ code: 'cancelled', message: 'Scoring cancelled; the cached activations are kept. Run it again to score.' });
       readUnit(db, run, layer.id, u, values);
       partials.push(scoreUnitPartial(u, values, labels, opts, scratch));
+      if (sample.has(u)) nullPartials.push(scoreUnitPartial(u, values, shuffled, opts, nullScratch));
       progress.advance(1);
       yield;
     }
-    for (const score of finishLayer(partials, relatedness, opts)) scored.push({ layer, score, layerOrder });
+    const layerScores = finishLayer(partials, relatedness, opts);
+    for (const score of layerScores) scored.push({ layer, score, layerOrder });
+    const mixedSampled = finishLayer(nullPartials, relatedness, opts).filter(isMixed).length;
+    nulls.set(layer.id, {
+      unitsSampled: nullPartials.length, mixedSampled, mixedExpected: (mixedSampled / Math.max(1, nullPartials.length)) * layer.units,
+      mixedReal: layerScores.filter(isMixed).length,
+    });
   }
   const ranked = rankUnits(scored);
-  writeScores(db, ranked, relatedness, key, opts);
+  writeScores(db, ranked, relatedness, key, opts, nulls);
   progress.finish();
   return { reused: false, layers: layers.length, units: totalUnits, seconds: (Date.now() - started) / 1000 };
 }
 
 const nullIfNaN = (x: number) => (Number.isNaN(x) ? null : x);
 
-function writeScores(db: Database.Database, ranked: { layer: LayerRow; score: UnitScore }[], rel: Relatedness, key: string, opts: ScoreOptions): void {
+/** The normalised rows of one unit: drivers (by share), modulators, nested labels. */
+export function driverRecords(s: UnitScore): DriverRecord[] {
+  return [
+    ...s.drivers.map((d): DriverRecord => ({
+      kind: 'driver', labels: d.labels, of: null, share: d.share, shareLow: d.shareLow, shareHigh: d.shareHigh, auroc: d.auroc, q: d.q,
+      effect: d.effect, upper: d.upper, nAlone: d.alone.n, meanAlone: d.alone.mean, nOthers: d.others.n, meanOthers: d.others.mean,
+      nNone: d.none.n, meanNone: d.none.mean, sameAs: d.sameAs,
+    })),
+    ...s.modulators.map((m): DriverRecord => ({
+      kind: 'modulator', labels: [m.label], of: m.of, share: null, shareLow: null, shareHigh: null, auroc: m.auroc, q: m.q,
+      effect: m.with.mean - m.without.mean, upper: null, nAlone: m.with.n, meanAlone: m.with.mean, nOthers: null, meanOthers: null,
+      nNone: m.without.n, meanNone: m.without.mean, sameAs: [],
+    })),
+    ...s.nested.map((x): DriverRecord => ({
+      kind: 'nested', labels: [x.label], of: x.within, share: null, shareLow: null, shareHigh: null, auroc: x.auroc, q: null,
+      effect: null, upper: null, nAlone: null, meanAlone: null, nOthers: null, meanOthers: null, nNone: null, meanNone: null, sameAs: [],
+    })),
+  ];
+}
+
+function writeScores(db: Database.Database, ranked: { layer: LayerRow; score: UnitScore }[], rel: Relatedness, key: string, opts: ScoreOptions, nulls: Map<number, LayerNull>): void {
   db.transaction(() => {
     for (const t of ['unit_label', 'unit_score', 'relatedness', 'score_run']) db.prepare(`DELETE FROM ${t}`).run();
+    clearDriverTables(db);
     const insScore = db.prepare(`INSERT INTO unit_score (layer_id, unit, rank, concept_count, selectivity, evidence, flags, drivers, explanation,
-      active_fraction, mean, max, top_threshold, top_probes, top_values) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
-    const insLabel = db.prepare(`INSERT INTO unit_label (layer_id, unit, label, n1, mean_with, mean_without, auroc, top_hits, p, q) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
+      active_fraction, mean, max, top_threshold, top_probes, top_values, concept_low, concept_high) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
+    const insLabel = db.prepare(`INSERT INTO unit_label (layer_id, unit, label, n1, mean_with, mean_without, auroc, top_hits, p, q, cond_auroc, cond_q) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
     ranked.forEach(({ layer, score: s }, rank) => {
-      insScore.run(layer.id, s.unit, rank, s.conceptCount, s.selectivity, s.evidence, JSON.stringify(s.flags), JSON.stringify(s.drivers),
+      // the drivers column keeps its one-label form {label, auroc, q, share} for its readers; unit_driver has everything
+      const legacy = s.drivers.map((d) => ({ label: d.label, labels: d.labels, auroc: d.auroc, q: d.q, share: d.share }));
+      insScore.run(layer.id, s.unit, rank, s.conceptCount, s.selectivity, s.evidence, JSON.stringify(s.flags), JSON.stringify(legacy),
         s.explanation ? JSON.stringify(s.explanation) : null, s.activeFraction, s.mean, s.max, s.topThreshold,
-        Buffer.from(s.topProbes.buffer, s.topProbes.byteOffset, s.topProbes.byteLength), floatsToBlob(s.topValues));
+        Buffer.from(s.topProbes.buffer, s.topProbes.byteOffset, s.topProbes.byteLength), floatsToBlob(s.topValues), s.conceptLow, s.conceptHigh);
       // A mean over no probes is NaN, which SQLite stores as NULL; readers map it back to null.
-      for (const st of s.stats) insLabel.run(layer.id, s.unit, st.label, st.n1, nullIfNaN(st.meanWith), nullIfNaN(st.meanWithout), st.auroc, st.topHits, st.p, st.q);
+      s.stats.forEach((st, l) => insLabel.run(layer.id, s.unit, st.label, st.n1, nullIfNaN(st.meanWith), nullIfNaN(st.meanWithout), st.auroc, st.topHits, st.p, st.q,
+        nullIfNaN(s.condAuroc[l]), Number.isNaN(s.condAuroc[l]) ? null : s.condQ[l]));
+      writeUnitDrivers(db, layer.id, s.unit, driverRecords(s));
     });
+    for (const [layerId, n] of nulls) writeLayerNull(db, { layerId, ...n, mixedAt: MIXED_AT, seed: NULL_SEED });
     const insRel = db.prepare(`INSERT INTO relatedness (a, b, similarity, source) VALUES (?, ?, ?, ?)`);
     const L = rel.labels.length;
     for (let a = 0; a < L; a++) for (let b = 0; b < L; b++) insRel.run(a, b, rel.matrix[a * L + b], rel.source[a * L + b]);
