@@ -6,6 +6,7 @@ import { z } from 'zod';
 import type { ApiContext } from './index.ts';
 import { openStudyDb, withStudyDb } from '../store/study.ts';
 import { unitTable, unitDistributions, similarUnits, conceptReach, layerOverview, exampleImage, probeLabels } from '../store/views.ts';
+import { evidenceRequests, unitEvidence } from './screens/evidence.ts';
 
 const path = z.string().min(1).max(4096);
 const layerName = z.string().min(1).max(1024);
@@ -33,6 +34,7 @@ export const screenRequests = {
   'example.image': z.strictObject({ study: path, probe: z.number().int().min(0) }),
   /** Label names of up to 512 probes (captions of top examples). */
   'probes.labels': z.strictObject({ study: path, probes: z.array(z.number().int().min(0)).max(512) }),
+  ...evidenceRequests,
 } satisfies Record<string, z.ZodType>;
 
 type Req<K extends keyof typeof screenRequests> = z.infer<(typeof screenRequests)[K]>;
@@ -47,7 +49,9 @@ export function createScreenApi(ctx: ApiContext) {
     'layers.overview': async (r: Req<'layers.overview'>) => withStudy(r.study, (db) => layerOverview(db, r.study)),
     'example.image': async (r: Req<'example.image'>) => withStudy(r.study, (db) => exampleImage(db, r.probe, r.study)),
     'probes.labels': async (r: Req<'probes.labels'>) => withStudy(r.study, (db) => probeLabels(db, r.probes)),
+    'unit.evidence': async ({ study, ...r }: Req<'unit.evidence'>) => withStudy(study, (db) => unitEvidence(db, r, study)),
   };
 }
 
 export type { UnitTable, UnitDistributions, SimilarUnits, ConceptReach, ConceptReachRow, LayerOverview, LayerOverviewRow, ScoreThresholds } from '../store/views.ts';
+export type { UnitEvidence, DriverEvidence, EvidenceExample, RankingReason } from './screens/evidence.ts';

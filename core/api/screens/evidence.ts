@@ -1,0 +1,126 @@
+/**
+ * The unit page's evidence (request `unit.evidence`): per driver, the probes carrying it alone, with the unit's other
+ * drivers, and with none of them (count, mean activation, effect), example probes of each driver on its own, and why
+ * the unit ranks where it does. Computed from the cached activations and label sets given the unit's driver list.
+ */
+import { z } from 'zod';
+import type Database from 'better-sqlite3';
+import { SkeinError } from '../../errors.ts';
+import { readRun, findLayer, readUnit, readUnitArgmax, type RunRow } from '../../store/study.ts';
+import { unitDetail, labelNames } from '../../store/queries.ts';
+import { probeLabels } from '../../store/views.ts';
+import { probesOfLabel, probeDisplays, rankNeighbours, type RankNeighbour } from '../../store/evidence.ts';
+import { driverPresence, responseTable, type ResponseGroup } from '../../score/response.ts';
+
+const path = z.string().min(1).max(4096);
+const layerName = z.string().min(1).max(1024);
+const labelName = z.string().min(1).max(1024);
+
+export const evidenceRequests = {
+  /**
+   * The evidence for one unit's drivers. `drivers` (optional) replaces the stored driver list with the caller's own,
+   * each a list of 1–3 labels that must all be present (a compound); default: the unit's stored drivers.
+   */
+  'unit.evidence': z.strictObject({
+    study: path, layer: layerName, unit: z.number().int().min(0),
+    drivers: z.array(z.array(labelName).min(1).max(3)).max(12).optional(),
+    examples: z.number().int().min(1).max(24).optional(),
+  }),
+} satisfies Record<string, z.ZodType>;
+
+export type EvidenceRequest = z.infer<(typeof evidenceRequests)['unit.evidence']>;
+
+export interface EvidenceExample {
+  probe: number; value: number;
+  /** Flat location of the pooled maximum on conv/sequence layers, else null. */
+  location: number | null;
+  id: string | null; text: string | null; image: string | null;
+  labels: string[];
+}
+
+export interface DriverEvidence {
+  /** As the scores name it; a compound names its parts joined by " & ". */
+  name: string;
+  parts: string[];
+  /** The stored share of the unit's response (null for a driver the caller supplied). */
+  share: number | null;
+  alone: ResponseGroup;
+  withOthers: ResponseGroup;
+  effectAlone: number | null;
+  effectWithOthers: number | null;
+  aboveNoneAlone: number | null;
+  aboveNoneWithOthers: number | null;
+  /** The highest-activating probes that carry this driver and none of the others. */
+  examples: EvidenceExample[];
+}
+
+export interface RankingReason {
+  /** 0-based position in the study-wide ranking. */
+  rank: number;
+  total: number;
+  conceptCount: number;
+  /** Σ −log10 q over the drivers: the tie-breaker. */
+  evidence: number;
+  flags: string[];
+  above: RankNeighbour | null;
+  below: RankNeighbour | null;
+}
+
+export interface UnitEvidence {
+  layer: string;
+  unit: number;
+  probes: number;
+  /** Whose driver list this is: the stored scores', or the caller's. */
+  driverSource: 'scores' | 'request';
+  drivers: DriverEvidence[];
+  none: ResponseGroup;
+  all: ResponseGroup;
+  /** The highest-activating probes that carry none of the drivers: what else the unit fires on. */
+  noneExamples: EvidenceExample[];
+  ranking: RankingReason;
+  /** The formulas behind the numbers, as the page states them. */
+  formulas: { effect: string; aboveNone: string };
+}
+
+export const EVIDENCE_FORMULAS = {
+  effect: 'effect = mean activation of the group − mean activation of the probes with none of the drivers',
+  aboveNone: 'above none = P(a probe of the group activates the unit more than a probe with none of the drivers), ties count half (Mann–Whitney U / (n_group · n_none))',
+};
+
+/** A stored driver's parts: its `labels` when the scores carry them (compound drivers), else its one label. */
+function partsOf(d: { label: string; labels?: string[] }): string[] {
+  return d.labels?.length ? d.labels : [d.label];
+}
+
+export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, 'study'>, file?: string): UnitEvidence {
+  const detail = unitDetail(db, req.layer, req.unit, file);
+  const run = readRun(db) as RunRow;
+  const layer = findLayer(db, req.layer, file);
+  const names = labelNames(db);
+  const idOf = new Map(names.map((n, i) => [n, i]));
+  const chosen = req.drivers
+    ? req.drivers.map((parts) => ({ name: parts.join(' & '), parts, share: null as number | null }))
+    : (detail.drivers as { label: string; share: number; labels?: string[] }[]).map((d) => ({ name: d.label, parts: partsOf(d), share: d.share }));
+  const presence = chosen.map((d, i) => driverPresence(run.probeCount, d.parts.map((label, j) => {
+    const id = idOf.get(label);
+    if (id === undefined) throw new SkeinError({ code: 'request', file, where: `drivers.${i}.${j}`, message: `No label "${label}" in this study.` });
+    return probesOfLabel(db, id);
+  })));
+  const values = readUnit(db, run, layer.id, req.unit);
+  const table = responseTable(values, presence, { examples: req.examples ?? 8 });
+
+  const withArgmax = layer.kind === 'conv' || layer.kind === 'sequence';
+  const examplesOf = (probes: number[]): EvidenceExample[] => {
+    const locations = withArgmax ? readUnitArgmax(db, run, layer.id, req.unit, probes) : probes.map(() => null);
+    const labels = probeLabels(db, probes);
+    return probeDisplays(db, probes).map((x, i) => ({ ...x, value: values[x.probe], location: locations[i], labels: labels[i] }));
+  };
+  const neighbours = rankNeighbours(db, detail.rank);
+  return {
+    layer: layer.name, unit: req.unit, probes: run.probeCount, driverSource: req.drivers ? 'request' : 'scores',
+    drivers: chosen.map((d, i) => ({ ...d, ...table.drivers[i], examples: examplesOf(table.drivers[i].examples) })),
+    none: table.none, all: table.all, noneExamples: examplesOf(table.noneExamples),
+    ranking: { rank: detail.rank, total: neighbours.total, conceptCount: detail.conceptCount, evidence: detail.evidence, flags: detail.flags, above: neighbours.above, below: neighbours.below },
+    formulas: EVIDENCE_FORMULAS,
+  };
+}
