@@ -430,39 +430,65 @@ export function jointModel(input: JointInput, opts: ScoreOptions, scratch: Joint
   const masks = fillProbeMasks(prepared, scratch, bits);
 
   let result: SweepResult | null = null;
+  // held: a single label with a significant positive effect that misses a floor. It is not a driver, but it stays
+  // among the candidates, so its probes join neither another driver's "alone" group nor the baseline (dropping it
+  // would lift the baseline and could knock out the true drivers one after another).
+  let held: boolean[] = terms.map(() => false);
   for (let round = 0; round < JOINT.maxSweeps && terms.length > 0; round++) {
     const implied = impliedTerms(terms, masks, scratch.hist);
     classify(terms, implied, masks, scratch);
     result = sweep(values, order, prepared, terms, scratch, false);
     terms.forEach((t, i) => { if (t.labels.length === 1) labelAuroc[t.labels[0]] = result!.auroc[i]; });
     const strongest = strongestEffect(result, opts);
-    const keep: boolean[] = terms.map((_, t) => passes(result!, t, opts, strongest));
+    const pass: boolean[] = terms.map((_, t) => passes(result!, t, opts, strongest));
     // a compound whose part (or smaller compound of its labels) passes is that part's modulation, not a driver
     terms.forEach((t, i) => {
-      if (!keep[i] || t.labels.length === 1) return;
-      if (terms.some((s, j) => j !== i && keep[j] && s.labels.length < t.labels.length && (s.mask & t.mask) === s.mask)) keep[i] = false;
+      if (!pass[i] || t.labels.length === 1) return;
+      if (terms.some((s, j) => j !== i && pass[j] && s.labels.length < t.labels.length && (s.mask & t.mask) === s.mask)) pass[i] = false;
     });
-    if (keep.every(Boolean)) break;
+    const r = result;
+    const nowHeld = terms.map((t, i) => !pass[i] && t.labels.length === 1 && r.alone[i].n >= JOINT.minGroup && r.p[i] <= opts.maxQ &&
+      r.alone[i].mean > r.none.mean);
+    const keep = terms.map((_, i) => pass[i] || nowHeld[i]);
+    const stable = keep.every(Boolean) && nowHeld.every((h, i) => h === held[i]);
+    held = nowHeld;
+    if (stable) break;
     terms.forEach((t, i) => {
       if (keep[i]) return;
       droppedP.push(result!.p[i]);
       droppedLabel.push(t.labels.length === 1 ? t.labels[0] : -1);
     });
     terms = terms.filter((_, i) => keep[i]);
+    held = held.filter((_, i) => keep[i]);
     result = null;
   }
-  if (terms.length === 0) return empty();
+  if (terms.length === 0 || held.every(Boolean)) {
+    // only held labels left: no driver; their tests still count in the layer's family
+    terms.forEach((t, i) => {
+      if (!result) return;
+      droppedP.push(result.p[i]);
+      droppedLabel.push(t.labels[0]);
+    });
+    return empty();
+  }
 
   // final sweep over the kept drivers: group statistics and modulators
+  // here a held label does not take a probe from a driver's "alone" group (the modulator test runs inside it), but
+  // its probes without a driver stay out of the baseline
   const implied = impliedTerms(terms, masks, scratch.hist);
+  let heldMask = 0;
+  held.forEach((h, i) => { if (h) heldMask |= 1 << i; });
+  held.forEach((h, i) => { if (!h) implied[i] |= heldMask; });
   classify(terms, implied, masks, scratch);
   const final = sweep(values, order, prepared, terms, scratch, true);
   const out: JointTerm[] = [];
+  const isDriver = (i: number) => !held[i];
   terms.forEach((t, i) => {
+    if (!isDriver(i)) return;
     // drivers whose probe sets nearly coincide (IoU ≥ sameConceptIou) are one concept
     const sameAs: number[][] = [];
-    for (const o of terms) {
-      if (o === t) continue;
+    for (const [k, o] of terms.entries()) {
+      if (o === t || !isDriver(k)) continue;
       let inA = 0;
       let inB = 0;
       let both = 0;
@@ -481,8 +507,9 @@ export function jointModel(input: JointInput, opts: ScoreOptions, scratch: Joint
     });
   });
   terms.forEach((t, i) => {
+    if (!isDriver(i)) return;
     const found = [...final.modulators![i].entries()]
-      .filter(([l, m]) => m.auroc >= opts.minAuroc && m.p <= opts.maxQ && m.with.mean > m.without.mean && !terms.some((s) => s.labels.length === 1 && s.labels[0] === l))
+      .filter(([l, m]) => m.auroc >= opts.minAuroc && m.p <= opts.maxQ && m.with.mean > m.without.mean && !terms.some((s, k) => isDriver(k) && s.labels.length === 1 && s.labels[0] === l))
       .sort((a, b) => b[1].auroc - a[1].auroc || a[0] - b[0])
       .slice(0, JOINT.maxModulators);
     for (const [l, m] of found) {
@@ -492,19 +519,31 @@ export function jointModel(input: JointInput, opts: ScoreOptions, scratch: Joint
       });
     }
   });
-  const tests = Float64Array.from([...out.map((t) => t.p), ...droppedP]);
+  // held labels' final tests join the family after the drivers' and modulators'
   terms.forEach((t, i) => {
-    if (t.labels.length !== 1) return;
-    labelAuroc[t.labels[0]] = final.auroc[i];
-    labelTest[t.labels[0]] = i;
+    if (isDriver(i)) return;
+    droppedP.push(final.p[i]);
+    droppedLabel.push(t.labels[0]);
   });
+  const tests = Float64Array.from([...out.map((t) => t.p), ...droppedP]);
+  let position = 0;
+  terms.forEach((t, i) => {
+    if (!isDriver(i)) return;
+    if (t.labels.length === 1) {
+      labelAuroc[t.labels[0]] = final.auroc[i];
+      labelTest[t.labels[0]] = position;
+    }
+    position++;
+  });
+  terms.forEach((t, i) => { if (!isDriver(i)) labelAuroc[t.labels[0]] = final.auroc[i]; });
   droppedLabel.forEach((l, i) => { if (l >= 0) labelTest[l] = out.length + i; });
   // screened labels that (nearly) contain a driver's probes and were dropped: the driver explains them
   const nested: JointResult['nested'] = [];
   for (const l of droppedLabel) {
     if (l < 0) continue;
     const bit = scratch.labelBit[l];
-    for (const d of terms) {
+    for (const [k, d] of terms.entries()) {
+      if (!isDriver(k)) continue;
       let count = 0;
       let both = 0;
       for (const m of masks) {
