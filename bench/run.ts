@@ -11,6 +11,7 @@ import os from 'node:os';
 import path from 'node:path';
 import { createRequire } from 'node:module';
 import Database from 'better-sqlite3';
+import { sqliteVersion } from '../core/store/study.ts';
 import { mlp, cnn } from './lib/models.ts';
 import { benchDir, median, seconds } from './lib/measure.ts';
 import { scanFigure, type ScanFigure } from './figures/scan.ts';
@@ -18,9 +19,10 @@ import { storageFigure, type StorageFigure } from './figures/storage.ts';
 import { agreementAtScale, scoringFigure, type ScoringFigure } from './figures/scoring.ts';
 import { scaleAxis, scoreJobPoint, type AxisResult, type JobPoint } from './figures/memory.ts';
 import { uiFigure, type UiFigure } from './figures/ui.ts';
+import { ablationFigure } from './figures/ablation.ts';
 import type { SyntheticSpec } from './lib/synthetic.ts';
 
-const FIGURES = ['scan', 'storage', 'scoring', 'memory', 'scale', 'ui'] as const;
+const FIGURES = ['scan', 'storage', 'scoring', 'memory', 'scale', 'ui', 'ablation'] as const;
 type FigureName = (typeof FIGURES)[number];
 
 interface Sizes {
@@ -42,6 +44,7 @@ interface Sizes {
   uiUnits: number;
   uiProbes: number;
   uiReps: number;
+  ablation: { probes: number; reps: number; cnn: [number, number, number, number] };
 }
 
 const FULL: Sizes = {
@@ -52,6 +55,7 @@ const FULL: Sizes = {
   scaleBase: { probes: 20_000, units: 1024, labels: 30, seed: 5 },
   scale: { probes: [20_000, 60_000, 200_000], units: [1024, 2048, 4096], labels: [10, 30, 100] },
   uiUnits: 100_000, uiProbes: 1024, uiReps: 5,
+  ablation: { probes: 2048, reps: 5, cnn: [28, 16, 32, 64] },
 };
 
 const QUICK: Sizes = {
@@ -62,6 +66,7 @@ const QUICK: Sizes = {
   scaleBase: { probes: 2000, units: 128, labels: 10, seed: 5 },
   scale: { probes: [2000, 4000, 8000], units: [128, 256, 512], labels: [10, 20, 40] },
   uiUnits: 2000, uiProbes: 256, uiReps: 2,
+  ablation: { probes: 1024, reps: 1, cnn: [28, 8, 16, 32] },
 };
 
 export interface ResultEntry {
@@ -94,7 +99,7 @@ const verdict = (ok: boolean) => (ok ? 'met' : 'MISSED');
 function machine(): Record<string, string> {
   const require = createRequire(import.meta.url);
   const db = new Database(':memory:');
-  const sqlite = db.prepare('select sqlite_version()').pluck().get() as string;
+  const sqlite = sqliteVersion(db);
   db.close();
   return {
     cpu: `${os.cpus()[0]?.model ?? '?'} × ${os.cpus().length}`,
@@ -283,6 +288,39 @@ async function main(): Promise<void> {
         `| one filter keystroke → updated rows | ${u.filterMs.toFixed(0)} | < 100 ${verdict(u.filterMs < 100)} |`, '',
         ...(u.problems.length ? [`The page reported errors while measured: ${u.problems.join('; ')}.`, ''] : []),
         `Runs (ms): open ${u.openRuns.map((x) => x.toFixed(0)).join('/')}; detail ${u.detailRuns.map((x) => x.toFixed(0)).join('/')}; chart ${u.chartRuns.map((x) => x.toFixed(0)).join('/')}; filter ${u.filterRuns.map((x) => x.toFixed(0)).join('/')}.`, '');
+    }
+  }
+
+  if (only.has('ablation')) {
+    say('\n== Ablation (bulk: every unit of a layer, one at a time) ==');
+    say('command: ablateLayer({ mode: zero }) (core/intervene/job.ts) per unit vs InferenceSession.run over the same probes (batch 512, outputs only), side by side');
+    const a = await ablationFigure(path.join(outDir, 'ablation'), sizes.ablation, log);
+    md.push('### Ablation', '', 'Bulk ablation time per unit against one plain inference pass of the same model over the same probes (limit: 1 inference per unit).', '',
+      '| model | layer | units | probes | cost metric | plain pass s | per unit s | per unit / plain | on CPU s | target | one-off (upstream + baseline) s | of a unit: downstream run / statistics ms |', '|---|---|---|---|---|---|---|---|---|---|---|---|');
+    for (const c of a.cases) {
+      say(`${c.model} ${c.layer} (${c.units} units, ${c.probes} probes): plain ${(c.plainSeconds * 1000).toFixed(1)} ms, per unit ${(c.perUnitSeconds * 1000).toFixed(2)} ms → ${f2(c.ratio)} inferences per unit (limit 1: ${verdict(c.ratio <= 1)}; on CPU seconds ${f2(c.cpuRatio)}); one-off ${(c.oneOffSeconds * 1000).toFixed(0)} ms; a unit = ${(c.forwardSeconds * 1000).toFixed(2)} ms run + ${(c.statsSeconds * 1000).toFixed(2)} ms statistics`);
+      md.push(`| ${c.model} | ${c.layer} | ${c.units} | ${c.probes} | ${c.metric} | ${c.plainSeconds.toFixed(4)} | ${c.perUnitSeconds.toFixed(4)} | ${f2(c.ratio)} | ${f2(c.cpuRatio)} | ≤ 1 ${verdict(c.ratio <= 1)} | ${c.oneOffSeconds.toFixed(3)} | ${(c.forwardSeconds * 1000).toFixed(2)} / ${(c.statsSeconds * 1000).toFixed(2)} |`);
+      results.push({ name: `ablation_unit_vs_inference_${c.model.startsWith('demo') ? 'demo' : 'cnn'}_${c.layer}`, value: c.ratio, unit: 'inferences per unit', target: '<= 1', note: `${c.units} units, ${c.probes} probes, ${c.metric}; wall, medians of interleaved runs` });
+      results.push({ name: `ablation_unit_vs_inference_cpu_${c.model.startsWith('demo') ? 'demo' : 'cnn'}_${c.layer}`, value: c.cpuRatio, unit: 'inferences per unit', target: null, note: 'CPU seconds of this process' });
+    }
+    const worst = a.cases.reduce((w, c) => (c.ratio > w.ratio ? c : w));
+    results.push({ name: 'ablation_unit_vs_inference', value: worst.ratio, unit: 'inferences per unit', target: '<= 1', note: `worst layer (${worst.model} ${worst.layer})` });
+    md.push('', '| growth with probes (' + a.growth[0].model + ', ' + a.growth[0].layer + ') | per unit s | plain pass s | ratio |', '|---|---|---|---|');
+    for (const g of a.growth) {
+      md.push(`| ${g.probes} probes | ${g.perUnitSeconds.toFixed(4)} | ${g.plainSeconds.toFixed(4)} | ${f2(g.ratio)} |`);
+      results.push({ name: `ablation_unit_seconds_probes_${g.probes}`, value: g.perUnitSeconds, unit: 's', target: null, note: `${g.layer}, ratio to a plain pass ${f2(g.ratio)}` });
+    }
+    say(`growth with probes (r2): ${a.growth.map((g) => `${g.probes}: ${(g.perUnitSeconds * 1000).toFixed(2)} ms/unit (${f2(g.ratio)}×)`).join(', ')}`);
+    md.push('', '| growth with units (r3, bulk pass end to end) | seconds |', '|---|---|');
+    for (const g of a.unitsGrowth) {
+      md.push(`| ${g.units} units | ${g.seconds.toFixed(3)} |`);
+      results.push({ name: `ablation_bulk_seconds_units_${g.units}`, value: g.seconds, unit: 's', target: null, note: `${g.layer}, one-off + units × per unit` });
+    }
+    const [u0, , u2] = a.unitsGrowth;
+    if (u0 && u2) {
+      const perUnit = (u2.seconds - u0.seconds) / (u2.units - u0.units);
+      say(`growth with units (r3): ${a.unitsGrowth.map((g) => `${g.units}: ${g.seconds.toFixed(2)} s`).join(', ')} → ${(perUnit * 1000).toFixed(2)} ms per extra unit, ${(u0.seconds - perUnit * u0.units).toFixed(2)} s fixed`);
+      md.push('', `A line through the ends: ${(perUnit * 1000).toFixed(2)} ms per extra unit plus ${(u0.seconds - perUnit * u0.units).toFixed(2)} s fixed (the upstream pass and the baseline).`, '');
     }
   }
 

@@ -1,7 +1,8 @@
 /**
  * The walls between runtimes (DEVELOPERS.md, "Layering"): core never imports app; only app/main and app/preload
  * import electron; the renderer imports no Node module, no native package, and from core only `import type` of
- * core/api. Checked on the import statements of every source file.
+ * core/api. Checked on the import statements of every source file. Also: no import cycle among core's modules (at
+ * run time: type-only imports are erased), and no SQL outside core/store.
  */
 import fs from 'node:fs';
 import path from 'node:path';
@@ -68,6 +69,64 @@ export function violations(file: string, text: string): string[] {
   return out;
 }
 
+/** Resolves a relative import of `file` to a source file path relative to the root, or null (package or missing). */
+function resolveSource(file: string, spec: string): string | null {
+  if (!spec.startsWith('.')) return null;
+  const abs = path.resolve(path.dirname(file), spec);
+  for (const candidate of [abs, `${abs}.ts`, path.join(abs, 'index.ts')]) {
+    if (fs.existsSync(candidate) && fs.statSync(candidate).isFile()) return path.relative(root, candidate);
+  }
+  return null;
+}
+
+/** Import cycles among the given files (run-time imports only), each as the list of files around it. */
+export function importCycles(sources: Map<string, string>): string[][] {
+  const edges = new Map<string, string[]>();
+  for (const [rel, text] of sources) {
+    const targets = importsOf(text).filter((r) => !r.typeOnly).map((r) => resolveSource(path.join(root, rel), r.spec)).filter((t): t is string => t !== null && sources.has(t));
+    edges.set(rel, [...new Set(targets)]);
+  }
+  // Depth-first search with an explicit path: a back edge to a file on the path closes a cycle.
+  const state = new Map<string, 'open' | 'done'>();
+  const stack: string[] = [];
+  const cycles: string[][] = [];
+  const visit = (f: string) => {
+    state.set(f, 'open');
+    stack.push(f);
+    for (const t of edges.get(f) ?? []) {
+      if (state.get(t) === 'open') cycles.push([...stack.slice(stack.indexOf(t)), t]);
+      else if (!state.has(t)) visit(t);
+    }
+    stack.pop();
+    state.set(f, 'done');
+  };
+  for (const f of [...sources.keys()].sort()) if (!state.has(f)) visit(f);
+  return cycles;
+}
+
+/** SQL text or a SQLite statement call: what only core/store may hold. */
+const SQL = /\.prepare\(|\.pragma\(|\.exec\(\s*[`'"]|[`'"]\s*(?:SELECT\s+[\w*(]|INSERT\s+(?:OR\s+\w+\s+)?INTO\b|DELETE\s+FROM\b|UPDATE\s+\w+\s+SET\b|CREATE\s+(?:TABLE|INDEX|TRIGGER|VIEW)\b|ALTER\s+TABLE\b|DROP\s+(?:TABLE|INDEX)\b|PRAGMA\s)/;
+
+/**
+ * Files outside core/store that may hold SQL, each with why no repository call can do its job. Keep it short:
+ * a new entry needs a reason a reviewer accepts.
+ */
+export const SQL_ALLOWED: Record<string, string> = {
+  'test/review/edit.test.ts': 'checks that the schema\'s own triggers refuse a raw UPDATE/DELETE of the review history: the SQL is what is tested',
+  'test/review/helpers.ts': 'reviewDump compares the review tables row for row, as stored (merge idempotence must hold on the stored rows, not only on decoded values)',
+  'test/review/durability.test.ts': 'PRAGMA integrity_check and the raw history after a SIGKILL: the file-level check has no repository equivalent',
+  'test/app/files.test.ts': 'compares sqlite_master and the header pragmas of a study copy with the original: a check of the SQLite file itself',
+  'test/renderer/screen-queries.test.ts': 'plants example rows no probe set can produce (image paths leaving the folder) to check the image reader refuses them',
+  'test/store/migration.test.ts': 'writes a study in the schema-2 layout through the old migrations: no repository of today writes that layout',
+  'bench/figures/storage.ts': 'measures alternative storage layouts (a bare blob table) side by side with the store\'s own',
+};
+
+export function sqlLines(text: string): number[] {
+  const lines: number[] = [];
+  text.split('\n').forEach((line, i) => { if (SQL.test(line)) lines.push(i + 1); });
+  return lines;
+}
+
 describe('layering', () => {
   // The rule's own behaviour on known inputs (common practice, no source).
   it('detects each kind of breach', () => {
@@ -82,6 +141,44 @@ describe('layering', () => {
     expect(violations(f('app/renderer/src/x.ts'), `const m = await import('better-sqlite3');`)).toHaveLength(1);
     expect(violations(f('core/x.ts'), `// unlike require('electron'), this reads a file\n/* import 'electron' */`)).toHaveLength(0);
     expect(violations(f('core/x.ts'), `const u = 'http://x'; import { app } from 'electron';`)).toHaveLength(1);
+  });
+
+  it('finds an import cycle, and ignores type-only imports (common practice, no source)', () => {
+    // Paths of real files, so imports resolve as they would in the tree; contents made up.
+    const real = new Map([
+      ['core/api/index.ts', `import { createReviewApi } from './review.ts';`],
+      ['core/api/review.ts', `import { isInsideRoots } from './index.ts';`],
+      ['core/api/contract.ts', `import type { Api } from './index.ts';`],
+    ]);
+    expect(importCycles(real)).toEqual([['core/api/index.ts', 'core/api/review.ts', 'core/api/index.ts']]);
+    real.set('core/api/review.ts', `import type { ApiContext } from './index.ts';`);
+    expect(importCycles(real)).toEqual([]);
+  });
+
+  it('finds SQL text and statement calls, not words in prose or DOM tag names (common practice, no source)', () => {
+    expect(sqlLines("db.prepare(`SELECT 1`)")).toEqual([1]);
+    expect(sqlLines("const q = 'x';\nrun(`DELETE FROM unit_score`)")).toEqual([2]);
+    expect(sqlLines("`INSERT OR REPLACE INTO activation (a) VALUES (?)`")).toEqual([1]);
+    expect(sqlLines("db.pragma('journal_mode = WAL')")).toEqual([1]);
+    expect(sqlLines("if (t.tagName === 'SELECT') return;")).toEqual([]);
+    expect(sqlLines("const m = /x(\\d+)/.exec(text);")).toEqual([]);
+    expect(sqlLines("say('Select a study, then update the table');")).toEqual([]);
+  });
+
+  it('has no import cycle in core (a cycle throws "Cannot access … before initialization" for whichever module loads first)', () => {
+    const sources = new Map(walk(path.join(root, 'core')).filter((f) => /\.(ts|js|mjs)$/.test(f)).map((f) => [path.relative(root, f), fs.readFileSync(f, 'utf8')]));
+    expect(sources.size).toBeGreaterThan(40);
+    expect(importCycles(sources)).toEqual([]);
+  });
+
+  it('keeps SQL in core/store', () => {
+    const files = ['core', 'app', 'test', 'bench', 'sample-data'].flatMap((d) => walk(path.join(root, d))).map((f) => path.relative(root, f));
+    const found = files
+      .filter((f) => !f.startsWith('core/store/') && !(f in SQL_ALLOWED) && f !== 'test/layering.test.ts')
+      .flatMap((f) => sqlLines(fs.readFileSync(path.join(root, f), 'utf8')).map((line) => `${f}:${line}`));
+    expect(found).toEqual([]);
+    // Every allowance is still needed (a file that lost its SQL leaves the list).
+    for (const f of Object.keys(SQL_ALLOWED)) expect(sqlLines(fs.readFileSync(path.join(root, f), 'utf8')).length, f).toBeGreaterThan(0);
   });
 
   it('holds for every source file', () => {

@@ -11,6 +11,7 @@ import path from 'node:path';
 import { spawnSync } from 'node:child_process';
 import { createRequire } from 'node:module';
 import { pathToFileURL } from 'node:url';
+import { writeFileDurably } from '../../core/fs/index.ts';
 import { NATIVE_DIR, BINDING_FILE, INFO_FILE, type NativeInfo } from './native.ts';
 
 const require = createRequire(import.meta.url);
@@ -91,12 +92,10 @@ export function buildElectronSqlite(): number {
     }
     fs.mkdirSync(NATIVE_DIR, { recursive: true });
     const info: NativeInfo = { electron, modules, platform, arch, builtAt: new Date().toISOString(), method };
-    // Binary first, then the note that vouches for it, each by rename: a half-copied binary is never described as good.
+    // Binary first, then the note that vouches for it, each written durably: a half-copied binary is never described as good.
     const target = path.join(NATIVE_DIR, BINDING_FILE);
-    fs.copyFileSync(built, `${target}.tmp`);
-    fs.renameSync(`${target}.tmp`, target);
-    fs.writeFileSync(path.join(NATIVE_DIR, `${INFO_FILE}.tmp`), JSON.stringify(info, null, 1) + '\n');
-    fs.renameSync(path.join(NATIVE_DIR, `${INFO_FILE}.tmp`), path.join(NATIVE_DIR, INFO_FILE));
+    writeFileDurably(target, fs.readFileSync(built));
+    writeFileDurably(path.join(NATIVE_DIR, INFO_FILE), JSON.stringify(info, null, 1) + '\n');
     process.stderr.write(`electron:sqlite: wrote ${target} (${method}, Electron ${electron}, ABI ${modules}).\n`);
     return 0;
   } finally {

@@ -1,10 +1,11 @@
 /**
  * What the desktop shell remembers between launches: recent studies and the light/dark choice, as one JSON file in
- * Electron's user data folder. Written by temporary file + rename so a crash never leaves half a file. Plain Node.
+ * Electron's user data folder. Written with core/fs's durable write, so a crash never leaves half a file. Plain Node.
  */
 import fs from 'node:fs';
 import path from 'node:path';
 import { z } from 'zod';
+import { writeFileDurably } from '../../core/fs/index.ts';
 
 export const MAX_RECENT = 10;
 
@@ -38,10 +39,7 @@ export function readShellState(file: string): ShellState {
 }
 
 export function writeShellState(file: string, state: ShellState): void {
-  fs.mkdirSync(path.dirname(file), { recursive: true });
-  const tmp = `${file}.tmp-${process.pid}`;
-  fs.writeFileSync(tmp, JSON.stringify(shellStateSchema.parse(state), null, 1) + '\n');
-  fs.renameSync(tmp, file);
+  writeFileDurably(file, JSON.stringify(shellStateSchema.parse(state), null, 1) + '\n');
 }
 
 /** Most recent first, no duplicates, at most MAX_RECENT. */

@@ -4,6 +4,7 @@
  */
 import fs from 'node:fs';
 import path from 'node:path';
+import { isInside } from '../../core/fs/index.ts';
 
 export const CONTENT_SECURITY_POLICY = [
   "default-src 'self'", "script-src 'self'",
@@ -33,8 +34,6 @@ export const contentTypeOf = (file: string): string => CONTENT_TYPES[path.extnam
 export const MISSING_BUILD_PAGE = `<!doctype html><meta charset="utf-8"><title>Skein</title>
 <p>The Skein screens have not been built yet. Run <code>npm run build:renderer</code> in the Skein folder, then reload this page.</p>\n`;
 
-const isOutside = (rel: string): boolean => rel.startsWith('..') || path.isAbsolute(rel);
-
 /** Maps a URL path onto a file inside rendererDir, or null when it would leave it (also through links) or is no file. */
 export function resolveStaticFile(rendererDir: string, urlPath: string): string | null {
   let decoded: string;
@@ -47,10 +46,9 @@ export function resolveStaticFile(rendererDir: string, urlPath: string): string 
   const rel = decoded === '/' || decoded === '' ? 'index.html' : decoded.replace(/^\/+/, '');
   const root = path.resolve(rendererDir);
   const full = path.resolve(root, rel);
-  if (isOutside(path.relative(root, full))) return null;
+  if (!isInside(root, full)) return null;
   try {
     const real = fs.realpathSync(full);
-    if (isOutside(path.relative(fs.realpathSync(root), real))) return null;
     return fs.statSync(real).isFile() ? real : null;
   } catch {
     return null;

@@ -4,12 +4,13 @@
  *   node --import tsx bench/child/score.ts <study>
  */
 import { openStudyDb } from '../../core/store/study.ts';
+import { clearScores } from '../../core/store/scores.ts';
 import { scoreStudy } from '../../core/score/job.ts';
 
 const file = process.argv[2];
 const db = openStudyDb(file);
 try {
-  db.prepare(`DELETE FROM score_run`).run();
+  clearScores(db);
   const baselineRssKb = process.resourceUsage().maxRSS;
   const start = process.hrtime.bigint();
   const summary = scoreStudy(db);

@@ -9,7 +9,8 @@ import * as ort from 'onnxruntime-node';
 import { createSession, exposeTensors, readModel, unitLayout } from '../../core/model/index.ts';
 import { Worker } from 'node:worker_threads';
 import { extract, selectLayers, DEFAULT_BATCH, DEFAULT_CHUNK } from '../../core/extract/scan.ts';
-import { openStudyDb, now } from '../../core/store/study.ts';
+import { openStudyDb } from '../../core/store/study.ts';
+import { bindStudy, insertLayer } from '../../core/store/binding.ts';
 import { poolBatch } from '../../core/extract/pool.ts';
 import { openNpy } from '../../core/probes/index.ts';
 import type { BenchModel } from '../lib/models.ts';
@@ -204,12 +205,10 @@ async function pipelinedScan(modelPath: string, inputs: ReturnType<typeof loadIn
     if (layers.some((l) => l.layout.kind !== 'dense')) throw new Error('pipelinedScan: dense layers only');
     const db = openStudyDb(study, { create: true });
     try {
-      db.prepare(`INSERT INTO run (id, model_path, model_fp, model_json, probes_dir, probes_fp, probes_name, probe_count, chunk_size, created_at, updated_at)
-        VALUES (1, ?, 'bench', '{}', 'bench', 'bench', 'bench', ?, ?, ?, ?)`).run(modelPath, inputs.count, chunkSize, now(), now());
-      for (const l of layers) {
-        db.prepare(`INSERT INTO layer (id, name, op, node, position, dims_json, kind, units, pool) VALUES (?, ?, 'Relu', ?, ?, ?, 'dense', ?, 'none')`)
-          .run(l.id, l.name, l.name, l.id, JSON.stringify(l.dims), l.layout.units);
-      }
+      bindStudy(db, { path: modelPath, fingerprint: 'bench', json: '{}' },
+        { dir: 'bench', fingerprint: 'bench', name: 'bench', count: inputs.count, labels: [], labelOffsets: new Int32Array(inputs.count + 1), labelIds: new Int32Array(0), concepts: null, examples: null, relatedness: null },
+        chunkSize);
+      for (const l of layers) l.id = insertLayer(db, { name: l.name, op: 'Relu', node: l.name, position: l.id, dims: l.dims, kind: 'dense', units: l.layout.units, pool: 'none' });
     } finally {
       db.close();
     }

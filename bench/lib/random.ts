@@ -1,16 +1,9 @@
 /** Seeded randomness for benchmark inputs, so every run measures the same work. */
 
-/** mulberry32 (common practice, no source): a small, fast 32-bit PRNG; returns [0, 1). */
-export function rng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+/** The one seeded generator Skein uses everywhere (core/random.ts, mulberry32). */
+import { mulberry32 as rng } from '../../core/random.ts';
+
+export { rng };
 
 /** Uniform values in [low, high). */
 export function uniform(count: number, low: number, high: number, seed: number): Float32Array {

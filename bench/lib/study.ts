@@ -4,7 +4,9 @@
  * The result is a complete study (run, labels, one dense layer, every chunk done) that scoreStudy accepts.
  */
 import fs from 'node:fs';
-import { openStudyDb, floatsToBlob, now } from '../../core/store/study.ts';
+import { openStudyDb, checkpoint, inTransaction } from '../../core/store/study.ts';
+import { bindStudy, insertLayer } from '../../core/store/binding.ts';
+import { writeUnitChunks, markChunksDone } from '../../core/store/activations.ts';
 import { SyntheticActivations, type SyntheticSpec } from './synthetic.ts';
 
 export interface BuiltStudy {
@@ -27,47 +29,34 @@ export function buildStudy(file: string, spec: SyntheticSpec, opts: { chunkSize?
   const layerUnits = opts.layerUnits ?? spec.units;
   removeStudy(file);
   const source = new SyntheticActivations(spec);
-  const db = openStudyDb(file, { create: true });
+  // a fixture build, not the measured write path: no fsync per commit
+  const db = openStudyDb(file, { create: true, unsynced: true });
   try {
-    // a fixture build, not the measured write path: no fsync per commit
-    db.pragma('synchronous = OFF');
-    const t = now();
-    db.transaction(() => {
-      db.prepare(`INSERT INTO run (id, model_path, model_fp, model_json, probes_dir, probes_fp, probes_name, probe_count, chunk_size, created_at, updated_at)
-        VALUES (1, 'synthetic.onnx', ?, '{}', 'synthetic', ?, 'synthetic', ?, ?, ?, ?)`)
-        .run(`synthetic-${spec.seed}-${spec.units}`, `synthetic-${spec.seed}-${spec.probes}-${spec.labels}`, spec.probes, chunkSize, t, t);
-      const insLabel = db.prepare(`INSERT INTO label (id, name) VALUES (?, ?)`);
-      source.labels.labels.forEach((name, id) => insLabel.run(id, name));
-      const insPL = db.prepare(`INSERT INTO probe_label (probe, label) VALUES (?, ?)`);
-      const { labelOffsets, labelIds } = source.labels;
-      for (let p = 0; p < spec.probes; p++) for (let k = labelOffsets[p]; k < labelOffsets[p + 1]; k++) insPL.run(p, labelIds[k]);
-    })();
+    bindStudy(db,
+      { path: 'synthetic.onnx', fingerprint: `synthetic-${spec.seed}-${spec.units}`, json: '{}' },
+      { dir: 'synthetic', fingerprint: `synthetic-${spec.seed}-${spec.probes}-${spec.labels}`, name: 'synthetic', count: spec.probes,
+        labels: source.labels.labels, labelOffsets: source.labels.labelOffsets, labelIds: source.labels.labelIds, concepts: null, examples: null, relatedness: null },
+      chunkSize);
     const chunks = Math.ceil(spec.probes / chunkSize);
-    const insLayer = db.prepare(`INSERT INTO layer (id, name, op, node, position, dims_json, kind, units, pool) VALUES (?, ?, 'Relu', ?, ?, ?, 'dense', ?, 'none')`);
-    const insAct = db.prepare(`INSERT INTO activation (layer_id, unit, chunk, vals, argmax) VALUES (?, ?, ?, ?, NULL)`);
-    const insDone = db.prepare(`INSERT INTO chunk_done (layer_id, chunk) VALUES (?, ?)`);
     const values = new Float32Array(spec.probes);
     const layerCount = Math.ceil(spec.units / layerUnits);
     for (let layer = 0; layer < layerCount; layer++) {
       const first = layer * layerUnits;
       const units = Math.min(layerUnits, spec.units - first);
-      const id = layer + 1;
       const name = layerCount === 1 ? 'synthetic' : `synthetic${layer}`;
-      insLayer.run(id, name, name, layer, JSON.stringify([units]), units);
+      const id = insertLayer(db, { name, op: 'Relu', node: name, position: layer, dims: [units], kind: 'dense', units, pool: 'none' });
       const batch = 64; // units per transaction
       for (let u0 = 0; u0 < units; u0 += batch) {
-        db.transaction(() => {
+        inTransaction(db, () => {
           for (let u = u0; u < Math.min(units, u0 + batch); u++) {
             source.fill(first + u, values);
-            for (let c = 0; c < chunks; c++) {
-              insAct.run(id, u, c, floatsToBlob(values.subarray(c * chunkSize, Math.min(spec.probes, (c + 1) * chunkSize))));
-            }
+            writeUnitChunks(db, id, u, chunkSize, values);
           }
-        })();
+        });
       }
-      db.transaction(() => { for (let c = 0; c < chunks; c++) insDone.run(id, c); })();
+      markChunksDone(db, id, Array.from({ length: chunks }, (_, c) => c));
     }
-    db.pragma('wal_checkpoint(TRUNCATE)');
+    checkpoint(db);
   } finally {
     db.close();
   }

@@ -1,10 +1,11 @@
 /**
  * Worker thread for the pipelined-scan proposal (bench/figures/scan.ts): writes each chunk the main thread hands
- * over with the scan's own statements and transaction shape (core/extract/scan.ts), on its own connection to the
+ * over with the scan's own repository call and transaction shape (core/store/activations.ts writeChunk), on its own connection to the
  * study, so SQLite works while onnxruntime computes the next chunk on the main thread.
  */
 import { parentPort, workerData } from 'node:worker_threads';
-import { openStudyDb, floatsToBlob, now } from '../../core/store/study.ts';
+import { openStudyDb } from '../../core/store/study.ts';
+import { writeChunk } from '../../core/store/activations.ts';
 
 interface ChunkMessage {
   chunk: number;
@@ -12,9 +13,6 @@ interface ChunkMessage {
 }
 
 const db = openStudyDb((workerData as { study: string }).study);
-const insertAct = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, argmax) VALUES (?, ?, ?, ?, ?)`);
-const insertDone = db.prepare(`INSERT OR REPLACE INTO chunk_done (layer_id, chunk) VALUES (?, ?)`);
-const touch = db.prepare(`UPDATE run SET updated_at = ? WHERE id = 1`);
 
 parentPort!.on('message', (m: ChunkMessage | 'close') => {
   if (m === 'close') {
@@ -22,12 +20,7 @@ parentPort!.on('message', (m: ChunkMessage | 'close') => {
     parentPort!.postMessage('closed');
     return;
   }
-  db.transaction(() => {
-    for (const l of m.layers) {
-      for (let u = 0; u < l.units; u++) insertAct.run(l.id, u, m.chunk, floatsToBlob(l.values.subarray(u * l.length, (u + 1) * l.length)), null);
-      insertDone.run(l.id, m.chunk);
-    }
-    touch.run(now());
-  })();
+  // All layers of a chunk share its length.
+  writeChunk(db, m.chunk, m.layers[0]?.length ?? 0, m.layers.map((l) => ({ layerId: l.id, units: l.units, values: l.values, argmax: null })));
   parentPort!.postMessage(m.chunk);
 });

@@ -1,42 +1,25 @@
 /**
  * The one typed contract the CLI and the screens use. Requests are validated here, at the boundary, for every
  * transport (CLI, Electron IPC, loopback HTTP); responses are plain JSON-safe values.
- * The renderer may import this file's *types* only.
+ * The renderer may import this file's *types* only. A leaf: at run time it loads zod and the request schemas (which
+ * load only zod and core/review/vocabulary), so any module may import it without forming a cycle.
  */
 import { z } from 'zod';
-import { screenRequests } from './screens.ts';
-import { fileRequests } from './files.ts';
-import { reviewRequests } from './review.ts';
+import { studyRequests } from './requests/study.ts';
+import { screenRequests } from './requests/screens.ts';
+import { fileRequests } from './requests/files.ts';
+import { reviewRequests } from './requests/review.ts';
+import { ablationRequests } from './requests/ablation.ts';
+import { lensRequests } from './requests/lens.ts';
 
-const path = z.string().min(1).max(4096);
-const layerName = z.string().min(1).max(1024);
-
+/** Every request the API answers, by method name. */
 export const requests = {
-  /** Capturable tensors of a model (skein layers). */
-  'model.layers': z.strictObject({ model: path }),
-  /** What a probe-set folder holds, validated (no model needed). */
-  'probes.inspect': z.strictObject({ probes: path }),
-  /** Extract + score in one job (skein scan). */
-  'scan.start': z.strictObject({
-    model: path, probes: path, study: path,
-    layers: z.array(layerName).max(10_000).optional(),
-    batch: z.number().int().min(1).max(65_536).optional(),
-    pool: z.enum(['max', 'mean', 'last']).optional(),
-    chunkSize: z.number().int().min(1).max(1 << 20).optional(),
-  }),
-  'job.get': z.strictObject({ job: z.string().min(1).max(64) }),
-  'job.cancel': z.strictObject({ job: z.string().min(1).max(64) }),
-  /** Study metadata: fingerprints, layers, labels, whether scores exist. */
-  'study.summary': z.strictObject({ study: path }),
-  /** Ranked units (skein rank). */
-  'study.rank': z.strictObject({ study: path, layer: layerName.optional(), top: z.number().int().min(1).optional() }),
-  /** One unit in full (skein unit). */
-  'unit.detail': z.strictObject({ study: path, layer: layerName, unit: z.number().int().min(0) }),
-  'export.scores': z.strictObject({ study: path, out: path }),
-  'export.activations': z.strictObject({ study: path, out: path, layer: layerName }),
+  ...studyRequests,
   ...screenRequests,
   ...fileRequests,
   ...reviewRequests,
+  ...ablationRequests,
+  ...lensRequests,
 } as const;
 
 export type Method = keyof typeof requests;
@@ -44,7 +27,10 @@ export type Request<M extends Method> = z.infer<(typeof requests)[M]>;
 
 export type { ErrorInfo } from '../errors.ts';
 export type { ModelInfo, CapturableTensor } from '../model/types.ts';
-export type { RankRow, UnitDetail, LabelStatRow, TopExample } from '../store/queries.ts';
+export type {
+  RankRow, UnitDetail, LabelStatRow, TopExample, UnitTable, UnitDistributions, SimilarUnits, ConceptReach, ConceptReachRow,
+  LayerStrata, LayerStrataRow, ScoreThresholds, UnitKind,
+} from './screens/read-models.ts';
 export type { ProgressReport } from '../extract/progress.ts';
 
 export interface ProbeSummary {
@@ -87,3 +73,5 @@ export interface ScanResult {
 }
 
 export interface ExportResult { file: string; rows: number; columns: number }
+export type { UnitAblationView, LayerAblationView, LayerAblationRow, AblateJobState, AblationRunInfo, UnitCost, LabelCost, Comparison } from './ablation.ts';
+export type { LensView, LensJobState, UnitLoadings, LensExport, LensResult, LensConcept } from './lens.ts';

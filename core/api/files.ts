@@ -6,21 +6,12 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { z } from 'zod';
+import type { z } from 'zod';
 import { SkeinError } from '../errors.ts';
 import { openStudyDb, APP_ID } from '../store/study.ts';
-import type { ApiContext } from './index.ts';
-
-export const fileRequests = {
-  /** Absolute paths of the demo model, probe set and the study it goes into (in the user's data folder). */
-  'app.demo': z.strictObject({}),
-  /** The folders the file browser may show (browser mode: exactly the allowed roots). */
-  'fs.roots': z.strictObject({}),
-  /** One folder's entries, folders first; dot files only when asked. */
-  'fs.list': z.strictObject({ dir: z.string().min(1).max(4096), hidden: z.boolean().optional() }),
-  /** A consistent copy of a study under a new name (File ▸ Save study as…); the original stays as it is. */
-  'study.saveAs': z.strictObject({ study: z.string().min(1).max(4096), out: z.string().min(1).max(4096) }),
-} satisfies Record<string, z.ZodType>;
+import { isInsideAny, writeDurablyVia } from '../fs/index.ts';
+import type { ApiContext } from './context.ts';
+import type { fileRequests } from './requests/files.ts';
 
 export interface FileEntry {
   name: string;
@@ -116,13 +107,10 @@ export function createFileApi(ctx: ApiContext) {
     'fs.roots': async (_r: z.infer<(typeof fileRequests)['fs.roots']>): Promise<string[]> => roots().map((r) => path.resolve(r)),
 
     'fs.list': async (r: z.infer<(typeof fileRequests)['fs.list']>): Promise<FolderListing> => {
-      // Imported when called: index.ts imports contract.ts, which imports this file, so a static import is a cycle
-      // that breaks whenever this file is the first of the three to load (app/start.ts, app/main).
-      const { isInsideRoots } = await import('./index.ts');
       const dir = path.resolve(r.dir);
       const allowed = roots();
       // dispatch already checked r.dir; checked again because entries below are filtered with the same rule.
-      if (ctx.allowedRoots && !isInsideRoots(dir, allowed)) {
+      if (ctx.allowedRoots && !isInsideAny(dir, allowed)) {
         throw new SkeinError({ code: 'request', file: dir, where: 'dir', message: `This folder is outside the folders Skein may use in browser mode (${allowed.join(', ')}).` });
       }
       let names: string[];
@@ -142,14 +130,14 @@ export function createFileApi(ctx: ApiContext) {
       for (const name of visible) {
         if (entries.length === MAX_ENTRIES) { truncated = true; break; }
         // A link inside a root that leads outside it is left out, so the listing never offers a path dispatch refuses.
-        if (ctx.allowedRoots && !isInsideRoots(path.join(dir, name), allowed)) continue;
+        if (ctx.allowedRoots && !isInsideAny(path.join(dir, name), allowed)) continue;
         const entry = describe(dir, name);
         if (entry) entries.push(entry);
       }
       entries.sort((a, b) => (a.kind === b.kind ? a.name.localeCompare(b.name) : a.kind === 'dir' ? -1 : 1));
       const isRoot = allowed.some((root) => path.resolve(root) === dir);
       const parent = path.dirname(dir);
-      const parentAllowed = !isRoot && parent !== dir && (!ctx.allowedRoots || isInsideRoots(parent, allowed));
+      const parentAllowed = !isRoot && parent !== dir && (!ctx.allowedRoots || isInsideAny(parent, allowed));
       return { dir, parent: parentAllowed ? parent : null, entries, truncated };
     },
 
@@ -162,13 +150,10 @@ export function createFileApi(ctx: ApiContext) {
       }
       if (fs.existsSync(out) && fs.statSync(out).isDirectory()) throw new SkeinError({ code: 'request', file: out, where: 'out', message: 'This is a folder; choose a file name ending in .study.' });
       const db = openStudyDb(from, { readonly: true, nativeBinding: ctx.nativeBinding });
-      // SQLite's online backup copies a consistent snapshot even while a scan writes; the rename makes it appear whole or not at all.
-      const tmp = `${out}.tmp-${process.pid}`;
+      // SQLite's online backup copies a consistent snapshot even while a scan writes; the durable write makes it appear whole or not at all.
       try {
-        await db.backup(tmp);
-        fs.renameSync(tmp, out);
+        await writeDurablyVia(out, async (tmp) => { await db.backup(tmp); });
       } catch (e) {
-        fs.rmSync(tmp, { force: true });
         throw new SkeinError({ code: 'io', file: out, message: `The copy could not be written (${(e as Error).message}). Check that the folder exists and is writable.` });
       } finally {
         db.close();

@@ -1,4 +1,3 @@
-import fs from 'node:fs';
 import path from 'node:path';
 import crypto from 'node:crypto';
 import { stringify } from 'csv-stringify/sync';
@@ -7,63 +6,23 @@ import { readModel } from '../model/index.ts';
 import { openProbeSet, writeNpyFloat32 } from '../probes/index.ts';
 import { extract, type ScanHooks } from '../extract/scan.ts';
 import { scoreStudyAsync } from '../score/job.ts';
-import { openStudyDb, readRun, readLayers, findLayer, readLayerChunk, withStudyDb } from '../store/study.ts';
-import { rankRows, unitDetail, labelNames } from '../store/queries.ts';
-import { createScreenApi } from './screens.ts';
+import { openStudyDb, withStudyDb } from '../store/study.ts';
+import { requireBinding, readLayers, findLayer, labelNames } from '../store/binding.ts';
+import { readLayerChunk } from '../store/activations.ts';
+import { hasScores } from '../store/scores.ts';
+import { writeFileDurably } from '../fs/index.ts';
+import { rankRows, unitDetail } from './screens/read-models.ts';
+import { createScreenApi } from './screens/index.ts';
 import { createFileApi } from './files.ts';
 import { createReviewApi } from './review.ts';
+import { checkPaths, type ApiContext } from './context.ts';
+import { createAblationApi } from './ablation.ts';
+import { createLensApi } from './lens.ts';
 import { requests, type Method, type Request, type JobState, type ScanResult, type StudySummary, type ProbeSummary, type ExportResult } from './contract.ts';
 
 export { requests };
 export type * from './contract.ts';
-
-/** What a transport hands the API: nothing global, everything passed in. */
-export interface ApiContext {
-  /** Electron's own better-sqlite3 build, when running inside Electron. */
-  nativeBinding?: string;
-  /**
-   * Browser mode: every path in every request must lie inside one of these folders (the demo folder, the user's
-   * data folder and folders named on the command line). Unset: any path (CLI, Electron with native dialogs).
-   */
-  allowedRoots?: string[];
-  /** The user's data folder (demo study, recent files): `$SKEIN_HOME` or `~/.skein` when unset. */
-  dataDir?: string;
-}
-
-/** Request fields that hold file or folder paths, checked against ApiContext.allowedRoots. */
-export const PATH_FIELDS = ['model', 'probes', 'study', 'out', 'dir'] as const;
-
-/** Resolves symlinks of the longest existing prefix, so a link cannot lead outside a root. */
-function realish(p: string): string {
-  let cur = path.resolve(p);
-  const tail: string[] = [];
-  while (!fs.existsSync(cur)) {
-    const parent = path.dirname(cur);
-    if (parent === cur) break;
-    tail.unshift(path.basename(cur));
-    cur = parent;
-  }
-  return path.join(fs.realpathSync(cur), ...tail);
-}
-
-export function isInsideRoots(p: string, roots: string[]): boolean {
-  const target = realish(p);
-  return roots.some((root) => {
-    const r = realish(root);
-    const rel = path.relative(r, target);
-    return rel === '' || (!rel.startsWith('..') && !path.isAbsolute(rel));
-  });
-}
-
-export function checkPaths(req: Record<string, unknown>, roots: string[] | undefined): void {
-  if (!roots) return;
-  for (const field of PATH_FIELDS) {
-    const v = req[field];
-    if (typeof v === 'string' && !isInsideRoots(v, roots)) {
-      throw new SkeinError({ code: 'request', file: v, where: field, message: `This path is outside the folders Skein may use in browser mode (${roots.join(', ')}). Move the file there or restart Skein naming its folder on the command line.` });
-    }
-  }
-}
+export { checkPaths, PATH_FIELDS, type ApiContext } from './context.ts';
 
 /** Validates a request body against its schema; the error names the field at fault. */
 export function parseRequest<M extends Method>(method: M, body: unknown): Request<M> {
@@ -142,15 +101,14 @@ export function createApi(ctx: ApiContext = {}) {
     },
 
     'study.summary': async (r: Request<'study.summary'>): Promise<StudySummary> => withStudy(r.study, (db) => {
-      const run = readRun(db);
-      if (!run) throw new SkeinError({ code: 'study', file: path.resolve(r.study), message: 'This study has no scan yet. Start a scan into it.' });
-      const scored = (db.prepare(`SELECT count(*) FROM score_run`).pluck().get() as number) > 0;
+      const binding = requireBinding(db, path.resolve(r.study));
+      const scored = hasScores(db);
       return {
         file: path.resolve(r.study),
-        model: { path: run.modelPath, fingerprint: run.modelFp },
-        probes: { dir: run.probesDir, name: run.probesName, fingerprint: run.probesFp, count: run.probeCount },
+        model: { path: binding.modelPath, fingerprint: binding.modelFp },
+        probes: { dir: binding.probesDir, name: binding.probesName, fingerprint: binding.probesFp, count: binding.probeCount },
         layers: readLayers(db).map((l) => ({ name: l.name, op: l.op, kind: l.kind, units: l.units, pool: l.pool, dims: l.dims })),
-        labels: labelNames(db), scored, createdAt: run.createdAt, updatedAt: run.updatedAt,
+        labels: labelNames(db), scored, createdAt: binding.createdAt, updatedAt: binding.updatedAt,
       };
     }),
 
@@ -176,19 +134,18 @@ export function createApi(ctx: ApiContext = {}) {
       } else {
         throw new SkeinError({ code: 'request', file: r.out, message: 'Scores export needs a .csv or .json file name.' });
       }
-      writeAtomically(r.out, text);
+      writeFileDurably(r.out, text);
       return { file: path.resolve(r.out), rows: rows.length, columns: ext === '.csv' ? 17 : 11 };
     },
 
     'export.activations': async (r: Request<'export.activations'>): Promise<ExportResult> => withStudy(r.study, (db) => {
-      const run = readRun(db);
-      if (!run) throw new SkeinError({ code: 'study', file: r.study, message: 'This study has no scan yet.' });
+      const binding = requireBinding(db, r.study, 'This study has no scan yet.');
       const layer = findLayer(db, r.layer, r.study);
       if (path.extname(r.out).toLowerCase() !== '.npy') throw new SkeinError({ code: 'request', file: r.out, message: 'Activations export needs a .npy file name.' });
       // Probe-major rows for numpy, built chunk by chunk from unit-major storage: memory is units × chunk size.
       function* blocks(): Generator<Float32Array> {
-        for (let c = 0; c * run!.chunkSize < run!.probeCount; c++) {
-          const length = Math.min(run!.chunkSize, run!.probeCount - c * run!.chunkSize);
+        for (let c = 0; c * binding.chunkSize < binding.probeCount; c++) {
+          const length = Math.min(binding.chunkSize, binding.probeCount - c * binding.chunkSize);
           const cols = readLayerChunk(db, layer.id, c);
           if (cols.length !== layer.units) throw new SkeinError({ code: 'study', file: r.study, where: `layer ${layer.name}`, message: 'The scan of this layer is incomplete. Run the scan again to finish it.' });
           const block = new Float32Array(length * layer.units);
@@ -196,11 +153,11 @@ export function createApi(ctx: ApiContext = {}) {
           yield block;
         }
       }
-      writeNpyFloat32(path.resolve(r.out), [run.probeCount, layer.units], blocks());
-      return { file: path.resolve(r.out), rows: run.probeCount, columns: layer.units };
+      writeNpyFloat32(path.resolve(r.out), [binding.probeCount, layer.units], blocks());
+      return { file: path.resolve(r.out), rows: binding.probeCount, columns: layer.units };
     }),
   };
-  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx) };
+  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx), ...createAblationApi(ctx), ...createLensApi(ctx) };
 }
 
 export type Api = ReturnType<typeof createApi>;
@@ -212,13 +169,4 @@ export async function dispatch(api: Api, ctx: ApiContext, method: string, body: 
   const req = parseRequest(m, body);
   checkPaths(req as Record<string, unknown>, ctx.allowedRoots);
   return (api[m] as (r: unknown) => Promise<unknown>)(req);
-}
-
-/** Writes via a temporary file and a rename, so an interrupted export never leaves a half-written file. */
-export function writeAtomically(file: string, text: string): void {
-  const abs = path.resolve(file);
-  fs.mkdirSync(path.dirname(abs), { recursive: true });
-  const tmp = `${abs}.tmp-${process.pid}`;
-  fs.writeFileSync(tmp, text);
-  fs.renameSync(tmp, abs);
 }

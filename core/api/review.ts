@@ -21,77 +21,22 @@
  * - Export a bundle: 'review.export'; the meeting report: 'report.write'.
  */
 import path from 'node:path';
-import { z } from 'zod';
+import type { z } from 'zod';
 import { SkeinError } from '../errors.ts';
-import { openStudyDb, readRun, withStudyDb } from '../store/study.ts';
+import { openStudyDb, withStudyDb } from '../store/study.ts';
+import { readBinding } from '../store/binding.ts';
 import {
   STATUSES, STATUS_MEANING, TAG_SUGGESTIONS, MAX_NOTE_LENGTH, MAX_TAGS_PER_UNIT, MAX_TAG_LENGTH, MAX_REVIEWER_LENGTH, MAX_BUNDLE_BYTES,
-  tagSchema, noteSchema, statusSchema, reviewerSchema, filterSchema, fieldProblem,
   unitKey, readAnnotation, eventsOfUnit, conflictDetails, listAnnotations, otherFingerprints, studyFingerprints, editUnit, undoLast,
   resolveStored, filterPredicate, readBundleFile, buildBundle, planImport, applyImport, checkFingerprints, renderNote,
-  readPreferences, saveReviewer, gatherReport, renderReportHtml, renderReportCsv, writeFileDurably,
+  readPreferences, saveReviewer, gatherReport, renderReportHtml, renderReportCsv,
   type Annotation, type ConflictDetail, type Field, type Resolution, type Status, type StoredEvent, type ReviewFilter,
   type FingerprintCheck, type FieldChange, type ImportResult, type UndoResult, type Preferences,
 } from '../review/index.ts';
 import { defaultDataDir } from './files.ts';
-import { isInsideRoots, type ApiContext } from './index.ts';
-
-const filePath = z.string().min(1).max(4096);
-const layerName = z.string().min(1).max(1024);
-const unitIndex = z.number().int().min(0);
-const field = z.string().min(1).max(MAX_TAG_LENGTH + 4).superRefine((f, c) => {
-  const p = fieldProblem(f);
-  if (p) c.addIssue({ code: 'custom', message: p });
-});
-const mapping = z.union([z.literal('by-name'), z.record(layerName, layerName)]);
-const resolution = z.strictObject({
-  layer: layerName, unit: unitIndex, field,
-  keep: z.union([z.literal('mine'), z.literal('theirs'), z.strictObject({ value: z.union([z.string(), z.boolean()]) })]),
-});
-
-export const reviewRequests = {
-  /** Statuses (ordered, with meanings), tag suggestions and limits, for the editors. */
-  'review.vocabulary': z.strictObject({}),
-  /** One unit's review in full: annotation, its note rendered, history (newest first), open conflicts. */
-  'review.get': z.strictObject({ study: filePath, layer: layerName, unit: unitIndex }),
-  /** The study's annotated units as column arrays (for the unit table's review columns and the review queue). */
-  'review.list': z.strictObject({ study: filePath, filter: filterSchema.optional() }),
-  /** Change tags / note / status of one unit, made on `version`; refused with 'conflict' when it is stale. */
-  'review.edit': z.strictObject({
-    study: filePath, layer: layerName, unit: unitIndex, version: z.number().int().min(0), reviewer: reviewerSchema,
-    changes: z.strictObject({
-      /** The complete new tag set (inline editor). */
-      tags: z.array(tagSchema).max(MAX_TAGS_PER_UNIT).optional(),
-      /** Tags to add / remove (keyboard 't', CLI). Applied after `tags`. */
-      addTags: z.array(tagSchema).max(MAX_TAGS_PER_UNIT).optional(),
-      removeTags: z.array(tagSchema).max(MAX_TAGS_PER_UNIT).optional(),
-      note: noteSchema.optional(),
-      status: statusSchema.optional(),
-    }),
-  }),
-  /** Revert this reviewer's newest edit not yet undone in this study. */
-  'review.undo': z.strictObject({ study: filePath, reviewer: reviewerSchema }),
-  /** Decide open conflicts stored on units (left from an earlier import). */
-  'review.resolve': z.strictObject({ study: filePath, reviewer: reviewerSchema, resolutions: z.array(resolution).min(1).max(100_000) }),
-  /** Render Markdown exactly as the detail view shows notes (safe HTML fragment). */
-  'review.noteHtml': z.strictObject({ note: noteSchema }),
-  /** Write a review bundle of all annotated units, or of those the filter selects. */
-  'review.export': z.strictObject({ study: filePath, out: filePath, filter: filterSchema.optional(), reviewer: reviewerSchema.optional() }),
-  /** What importing a bundle would do, without writing: fingerprint check, mapping proposal, changes, conflicts. */
-  'review.preview': z.strictObject({ study: filePath, file: filePath, mapping: mapping.optional() }),
-  /** Merge a bundle into the study in one transaction; returns what merged and the conflicts left open. */
-  'review.import': z.strictObject({
-    study: filePath, file: filePath, mapping: mapping.optional(),
-    resolutions: z.array(resolution).max(100_000).optional(),
-    /** Signs the resolution edits; required when `resolutions` is not empty. */
-    reviewer: reviewerSchema.optional(),
-  }),
-  /** The meeting report: self-contained HTML, and a CSV of the same units when `csv` is given. {} = every annotated unit. */
-  'report.write': z.strictObject({ study: filePath, out: filePath, csv: filePath.optional(), filter: filterSchema, reviewer: reviewerSchema.optional() }),
-  /** The reviewer name from the preferences file (null when not set yet). */
-  'prefs.get': z.strictObject({}),
-  'prefs.set': z.strictObject({ reviewer: reviewerSchema }),
-} satisfies Record<string, z.ZodType>;
+import { writeFileDurably } from '../fs/index.ts';
+import { checkPath, type ApiContext } from './context.ts';
+import type { reviewRequests } from './requests/review.ts';
 
 type Req<K extends keyof typeof reviewRequests> = z.infer<(typeof reviewRequests)[K]>;
 
@@ -159,14 +104,9 @@ export type { Annotation, ConflictDetail, ConflictSide, Field, FieldValue, Statu
 export function createReviewApi(ctx: ApiContext) {
   const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => withStudyDb(file, { nativeBinding: ctx.nativeBinding }, fn);
   const dataDir = () => ctx.dataDir ?? defaultDataDir();
-  // 'file' and 'csv' are not among the API's generic path fields, so browser mode's roots are checked here.
+  // Checked here too (dispatch checks them first) so a handler called directly keeps browser mode's rule.
   const checkRoots = (fields: Record<string, string | undefined>) => {
-    if (!ctx.allowedRoots) return;
-    for (const [name, p] of Object.entries(fields)) {
-      if (p !== undefined && !isInsideRoots(p, ctx.allowedRoots)) {
-        throw new SkeinError({ code: 'request', file: p, where: name, message: `This path is outside the folders Skein may use in browser mode (${ctx.allowedRoots.join(', ')}). Move the file there or restart Skein naming its folder on the command line.` });
-      }
-    }
+    for (const [name, p] of Object.entries(fields)) if (p !== undefined) checkPath(p, name, ctx.allowedRoots);
   };
   const signer = (given: string | undefined) => given ?? readPreferences(dataDir()).reviewer;
 
@@ -224,9 +164,9 @@ export function createReviewApi(ctx: ApiContext) {
 
     'review.export': async (r: Req<'review.export'>): Promise<ExportBundleResult> => withStudy(r.study, (db) => {
       const fps = studyFingerprints(db, r.study);
-      const run = readRun(db)!;
+      const binding = readBinding(db)!;
       const chosen = listAnnotations(db, fps).filter(filterPredicate(r.filter));
-      const bundle = buildBundle(db, fps, run.probesName, chosen, signer(r.reviewer), (r.filter ?? null) as ReviewFilter | null);
+      const bundle = buildBundle(db, fps, binding.probesName, chosen, signer(r.reviewer), (r.filter ?? null) as ReviewFilter | null);
       const text = JSON.stringify(bundle, null, 1) + '\n';
       if (Buffer.byteLength(text) > MAX_BUNDLE_BYTES) {
         throw new SkeinError({ code: 'review', file: r.out, message: `This bundle would be larger than ${MAX_BUNDLE_BYTES / 1048576} MB, more than a colleague's Skein accepts. Export with a filter (by layer, tag or status) in parts.` });

@@ -4,10 +4,12 @@
  */
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { parseArgs, type ParseArgsConfig } from 'node:util';
 import { createApi, parseRequest, runScan, toErrorInfo } from '../api/index.ts';
 import type { RankRow, UnitDetail, ModelInfo, ProgressReport } from '../api/contract.ts';
 import { REVIEW_HELP, reviewCommand, reportCommand } from './review.ts';
+import { UsageError, parse, intOption, unitArg } from './args.ts';
+import { ABLATE_HELP, ablateCommand } from './ablate.ts';
+import { LENS_HELP, lensCommand } from './lens.ts';
 
 const HELP = `skein — find the polysemantic units of an ONNX model on a labelled probe set
 
@@ -19,6 +21,8 @@ const HELP = `skein — find the polysemantic units of an ONNX model on a labell
   skein export <study> --activations out.npy --layer L
   skein demo [--study file]      scan the bundled demo and print the ranked units
 ${REVIEW_HELP}
+${ABLATE_HELP}
+${LENS_HELP}
 
 Scores are statistical hypotheses about the model on this probe set, not proof: check a unit before pruning or
 trusting it.`;
@@ -28,28 +32,6 @@ export const demoPaths = {
   model: path.join(repoRoot, 'sample-data/tiles-model.onnx'),
   probes: path.join(repoRoot, 'sample-data/tiles'),
 };
-
-class UsageError extends Error {}
-
-function parse(argv: string[], options: ParseArgsConfig['options'], positionals: number) {
-  let parsed;
-  try {
-    parsed = parseArgs({ args: argv, options, allowPositionals: true, strict: true });
-  } catch (e) {
-    throw new UsageError((e as Error).message);
-  }
-  if (parsed.positionals.length !== positionals) {
-    throw new UsageError(`expected ${positionals} argument(s), got ${parsed.positionals.length}`);
-  }
-  return parsed as { values: Record<string, string | boolean | undefined>; positionals: string[] };
-}
-
-function intOption(v: unknown, name: string): number | undefined {
-  if (v === undefined) return undefined;
-  const n = Number(v);
-  if (!Number.isInteger(n) || n < 1) throw new UsageError(`--${name} needs a positive whole number, got "${v}"`);
-  return n;
-}
 
 const fmt = (x: number | null, d = 3) => (x === null ? "—" : Number.isFinite(x) ? x.toFixed(d) : String(x));
 
@@ -171,8 +153,7 @@ export async function main(argv: string[]): Promise<number> {
       }
       case 'unit': {
         const a = parse(rest, { json: { type: 'boolean' } }, 3);
-        const unit = Number(a.positionals[2]);
-        if (!Number.isInteger(unit) || unit < 0) throw new UsageError(`unit must be a 0-based whole number, got "${a.positionals[2]}"`);
+        const unit = unitArg(a.positionals[2]);
         const u = await api['unit.detail'](parseRequest('unit.detail', { study: a.positionals[0], layer: a.positionals[1], unit }));
         if (a.values.json) console.log(JSON.stringify(u, null, 1));
         else printUnit(u);
@@ -197,6 +178,10 @@ export async function main(argv: string[]): Promise<number> {
         return await reviewCommand(rest, api);
       case 'report':
         return await reportCommand(rest, api);
+      case 'lens':
+        return await lensCommand(rest, api);
+      case 'ablate':
+        return await ablateCommand(rest, api);
       case undefined:
       case 'help':
       case '--help':

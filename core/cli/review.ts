@@ -5,8 +5,8 @@
  */
 import fs from 'node:fs';
 import path from 'node:path';
-import { parseArgs, type ParseArgsConfig } from 'node:util';
 import { parseRequest, type Api } from '../api/index.ts';
+import { UsageError, parse, unitArg } from './args.ts';
 import type { ConflictDetail, FieldValue, ImportResult, ReviewPreview, UnitReview } from '../api/review.ts';
 
 export const REVIEW_HELP = `  skein review edit <study> <layer> <unit> [--tag T]… [--untag T]… [--note TEXT | --note-file F] [--status S] [--reviewer NAME]
@@ -23,22 +23,6 @@ export const REVIEW_HELP = `  skein review edit <study> <layer> <unit> [--tag T]
 
 /** Exit code of an import that merged but left conflicts for a person to decide. */
 export const EXIT_CONFLICTS = 3;
-
-class ReviewUsageError extends Error {}
-
-function parse(argv: string[], options: ParseArgsConfig['options'], positionals: number | [number, number]) {
-  let parsed;
-  try {
-    parsed = parseArgs({ args: argv, options, allowPositionals: true, strict: true });
-  } catch (e) {
-    throw new ReviewUsageError((e as Error).message);
-  }
-  const [lo, hi] = typeof positionals === 'number' ? [positionals, positionals] : positionals;
-  if (parsed.positionals.length < lo || parsed.positionals.length > hi) {
-    throw new ReviewUsageError(`expected ${lo === hi ? lo : `${lo} to ${hi}`} argument(s), got ${parsed.positionals.length}`);
-  }
-  return parsed as { values: Record<string, string | boolean | string[] | undefined>; positionals: string[] };
-}
 
 const FILTER_OPTIONS = {
   tag: { type: 'string', multiple: true }, status: { type: 'string', multiple: true }, layer: { type: 'string', multiple: true },
@@ -63,7 +47,7 @@ export function filterFromArgs(values: Record<string, unknown>): Record<string, 
       else if (k === 'reviewer') reviewers.push(v);
       else if (k === 'text') f.text = v;
       else if (k === 'conflicted') f.conflicted = v !== 'false' && v !== 'no';
-      else throw new ReviewUsageError(`--filter: unknown key "${k}" (use tag, status, layer, reviewer, text, conflicted)`);
+      else throw new UsageError(`--filter: unknown key "${k}" (use tag, status, layer, reviewer, text, conflicted)`);
     }
   }
   if (tags.length) f.tags = tags;
@@ -73,27 +57,22 @@ export function filterFromArgs(values: Record<string, unknown>): Record<string, 
   return f;
 }
 
-function unitArg(s: string): number {
-  const n = Number(s);
-  if (!Number.isInteger(n) || n < 0) throw new ReviewUsageError(`unit must be a 0-based whole number, got "${s}"`);
-  return n;
-}
 
 async function reviewerOf(api: Api, given: unknown): Promise<string> {
   if (typeof given === 'string') return given;
   const prefs = await api['prefs.get']({});
   if (prefs.reviewer) return prefs.reviewer;
-  throw new ReviewUsageError(`edits are signed with your name: set it once with "skein review reviewer NAME" or pass --reviewer NAME${prefs.problem ? ` (${prefs.problem})` : ''}`);
+  throw new UsageError(`edits are signed with your name: set it once with "skein review reviewer NAME" or pass --reviewer NAME${prefs.problem ? ` (${prefs.problem})` : ''}`);
 }
 
 function mappingFrom(values: Record<string, unknown>): unknown {
-  if (values['map-by-name'] && values.map) throw new ReviewUsageError('give either --map-by-name or --map, not both');
+  if (values['map-by-name'] && values.map) throw new UsageError('give either --map-by-name or --map, not both');
   if (values['map-by-name']) return 'by-name';
   if (typeof values.map !== 'string') return undefined;
   const out: Record<string, string> = {};
   for (const pair of values.map.split(',').map((s) => s.trim()).filter(Boolean)) {
     const eq = pair.indexOf('=');
-    if (eq <= 0 || eq === pair.length - 1) throw new ReviewUsageError(`--map takes bundleLayer=studyLayer pairs separated by commas, got "${pair}"`);
+    if (eq <= 0 || eq === pair.length - 1) throw new UsageError(`--map takes bundleLayer=studyLayer pairs separated by commas, got "${pair}"`);
     out[pair.slice(0, eq)] = pair.slice(eq + 1);
   }
   return out;
@@ -141,7 +120,7 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
         const a = parse(rest, { tag: { type: 'string', multiple: true }, untag: { type: 'string', multiple: true }, note: { type: 'string' }, 'note-file': { type: 'string' }, status: { type: 'string' }, reviewer: { type: 'string' }, json: { type: 'boolean' } }, 3);
         const [study, layer, unitText] = a.positionals;
         const unit = unitArg(unitText);
-        if (a.values.note !== undefined && a.values['note-file'] !== undefined) throw new ReviewUsageError('give either --note or --note-file, not both');
+        if (a.values.note !== undefined && a.values['note-file'] !== undefined) throw new UsageError('give either --note or --note-file, not both');
         const note = typeof a.values['note-file'] === 'string' ? fs.readFileSync(a.values['note-file'], 'utf8') : (a.values.note as string | undefined);
         const reviewer = await reviewerOf(api, a.values.reviewer);
         const current = await api['review.get'](parseRequest('review.get', { study, layer, unit }));
@@ -150,7 +129,7 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
         if (a.values.untag) changes.removeTags = a.values.untag;
         if (note !== undefined) changes.note = note;
         if (a.values.status !== undefined) changes.status = a.values.status;
-        if (!Object.keys(changes).length) throw new ReviewUsageError('nothing to change: give --tag, --untag, --note, --note-file or --status');
+        if (!Object.keys(changes).length) throw new UsageError('nothing to change: give --tag, --untag, --note, --note-file or --status');
         const next = await api['review.edit'](parseRequest('review.edit', { study, layer, unit, version: current.annotation.version, reviewer, changes }));
         if (a.values.json) console.log(JSON.stringify(next, null, 1));
         else process.stderr.write(`saved ${next.layer} unit ${next.unit} (version ${next.version}): status ${next.status}, tags ${next.tags.join(', ') || '(none)'}\n`);
@@ -185,7 +164,7 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
       case 'resolve': {
         const a = parse(rest, { reviewer: { type: 'string' } }, 5);
         const [study, layer, unitText, field, keep] = a.positionals;
-        if (keep !== 'mine' && keep !== 'theirs') throw new ReviewUsageError(`the last argument is mine or theirs, got "${keep}"`);
+        if (keep !== 'mine' && keep !== 'theirs') throw new UsageError(`the last argument is mine or theirs, got "${keep}"`);
         const reviewer = await reviewerOf(api, a.values.reviewer);
         await api['review.resolve'](parseRequest('review.resolve', { study, reviewer, resolutions: [{ layer, unit: unitArg(unitText), field, keep }] }));
         process.stderr.write(`resolved ${field} of ${layer} unit ${unitText}: kept ${keep}\n`);
@@ -193,7 +172,7 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
       }
       case 'export': {
         const a = parse(rest, { ...FILTER_OPTIONS, out: { type: 'string' }, reviewer: { type: 'string' } }, 1);
-        if (typeof a.values.out !== 'string') throw new ReviewUsageError('export needs --out bundle.json');
+        if (typeof a.values.out !== 'string') throw new UsageError('export needs --out bundle.json');
         const filter = filterFromArgs(a.values);
         const prefs = await api['prefs.get']({});
         const reviewer = (a.values.reviewer as string | undefined) ?? prefs.reviewer ?? undefined;
@@ -212,12 +191,12 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
           return p.refused ? 1 : p.conflicts.length ? EXIT_CONFLICTS : 0;
         }
         const keep = a.values.keep;
-        if (keep !== undefined && keep !== 'mine' && keep !== 'theirs') throw new ReviewUsageError(`--keep is mine or theirs, got "${keep}"`);
+        if (keep !== undefined && keep !== 'mine' && keep !== 'theirs') throw new UsageError(`--keep is mine or theirs, got "${keep}"`);
         let resolutions: unknown[] | undefined;
         let reviewer: string | undefined = a.values.reviewer as string | undefined;
         if (keep) {
           const p = await api['review.preview'](parseRequest('review.preview', { study, file, mapping }));
-          if (p.refused) throw new ReviewUsageError(p.refused.replace(/\.$/, ''));
+          if (p.refused) throw new UsageError(p.refused.replace(/\.$/, ''));
           resolutions = p.conflicts.map((c) => ({ layer: c.layer, unit: c.unit, field: c.field, keep }));
           if (resolutions.length) reviewer = await reviewerOf(api, a.values.reviewer);
         }
@@ -239,10 +218,10 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
         return 0;
       }
       default:
-        throw new ReviewUsageError(sub ? `unknown review command "${sub}"` : 'say what to do: edit, show, list, undo, resolve, export, import or reviewer');
+        throw new UsageError(sub ? `unknown review command "${sub}"` : 'say what to do: edit, show, list, undo, resolve, export, import or reviewer');
     }
   } catch (e) {
-    if (e instanceof ReviewUsageError) {
+    if (e instanceof UsageError) {
       process.stderr.write(`skein review ${sub ?? ''}: ${e.message}. Run skein help for usage.\n`);
       return 2;
     }
@@ -253,17 +232,17 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
 export async function reportCommand(argv: string[], api: Api): Promise<number> {
   try {
     const a = parse(argv, { ...FILTER_OPTIONS, out: { type: 'string' }, csv: { type: 'string' }, all: { type: 'boolean' }, reviewer: { type: 'string' } }, 1);
-    if (typeof a.values.out !== 'string') throw new ReviewUsageError('report needs --out report.html');
+    if (typeof a.values.out !== 'string') throw new UsageError('report needs --out report.html');
     const filter = filterFromArgs(a.values);
-    if (!a.values.all && !Object.keys(filter).length) throw new ReviewUsageError('say which units: --tag T, --status S, --layer L, --filter … or --all (every annotated unit)');
-    if (a.values.all && Object.keys(filter).length) throw new ReviewUsageError('--all takes every annotated unit; leave out the other filters or --all');
+    if (!a.values.all && !Object.keys(filter).length) throw new UsageError('say which units: --tag T, --status S, --layer L, --filter … or --all (every annotated unit)');
+    if (a.values.all && Object.keys(filter).length) throw new UsageError('--all takes every annotated unit; leave out the other filters or --all');
     const r = await api['report.write'](parseRequest('report.write', {
       study: a.positionals[0], out: a.values.out, csv: a.values.csv, filter, reviewer: a.values.reviewer,
     }));
     process.stderr.write(`wrote ${r.units} unit${r.units === 1 ? '' : 's'} to ${r.file} (${Math.round(r.bytes / 1024)} KiB)${r.csv ? ` and ${path.basename(r.csv)}` : ''}\n`);
     return 0;
   } catch (e) {
-    if (e instanceof ReviewUsageError) {
+    if (e instanceof UsageError) {
       process.stderr.write(`skein report: ${e.message}. Run skein help for usage.\n`);
       return 2;
     }

@@ -7,7 +7,9 @@ import { readModel, exposeTensors, createSession, unitLayout, batchPolicy, dryRu
 import type { ModelInfo, ValueInfo } from '../model/types.ts';
 import { openProbeSet, resolveFillShapes, float16BitsToNumber } from '../probes/index.ts';
 import type { ProbeSet } from '../probes/types.ts';
-import { openStudyDb, readRun, readLayers, doneChunks, floatsToBlob, now, type LayerRow } from '../store/study.ts';
+import { openStudyDb } from '../store/study.ts';
+import { readBinding, bindStudy, updateBindingPaths, readLayers, insertLayer, deleteLayer, type LayerRow } from '../store/binding.ts';
+import { doneChunks, writeChunk } from '../store/activations.ts';
 import { poolBatch, type Pool, type LayerKind } from './pool.ts';
 import { Progress, type ProgressReport } from './progress.ts';
 
@@ -57,7 +59,7 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
 
   const db = openStudyDb(req.study, { create: true, nativeBinding: hooks.nativeBinding });
   try {
-    const chunkSize = bindRun(db, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
+    const chunkSize = bindToStudy(db, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
 
     const bytes = exposeTensors(fs.readFileSync(info.path), selected.map((t) => t.name), { modelPath: info.path });
     const session = await createSession(bytes, { intraOpThreads: req.threads }, info.path);
@@ -88,9 +90,6 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
       // Progress counts probes over the whole set; on a resume the cached chunks count as done from the start.
       const probesTodo = pending.reduce((s, p) => s + chunkLength(p.chunk, chunkSize, probes.count), 0);
       const progress = new Progress('extract', probes.count, hooks.onProgress, probes.count - probesTodo);
-      const insertAct = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, argmax) VALUES (?, ?, ?, ?, ?)`);
-      const insertDone = db.prepare(`INSERT OR REPLACE INTO chunk_done (layer_id, chunk) VALUES (?, ?)`);
-      const touch = db.prepare(`UPDATE run SET updated_at = ? WHERE id = 1`);
 
       for (const { chunk, layers: todo } of pending) {
         const start = chunk * chunkSize;
@@ -114,17 +113,7 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
         }
         throwIfAborted(hooks.signal);
         // One transaction per chunk: a kill leaves whole chunks only, so resume never mixes partial work in.
-        db.transaction(() => {
-          for (const buf of buffers) {
-            for (let u = 0; u < buf.layer.units; u++) {
-              const vals = buf.values.subarray(u * length, (u + 1) * length);
-              const am = buf.argmax ? buf.argmax.subarray(u * length, (u + 1) * length) : null;
-              insertAct.run(buf.layer.id, u, chunk, floatsToBlob(vals), am ? Buffer.from(am.buffer, am.byteOffset, am.byteLength) : null);
-            }
-            insertDone.run(buf.layer.id, chunk);
-          }
-          touch.run(now());
-        })();
+        writeChunk(db, chunk, length, buffers.map((b) => ({ layerId: b.layer.id, units: b.layer.units, values: b.values, argmax: b.argmax })));
       }
       progress.finish();
       return {
@@ -145,7 +134,7 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
 }
 
 /** Exposed float16 tensors come back as raw half-precision bits; everything is stored as float32. */
-function asFloats(t: ort.Tensor): ArrayLike<number> {
+export function asFloats(t: ort.Tensor): ArrayLike<number> {
   if (t.type === 'float16') return Float32Array.from(t.data as Uint16Array, float16BitsToNumber);
   return t.data as Float32Array | Float64Array;
 }
@@ -186,7 +175,7 @@ export function selectLayers(info: ModelInfo, names?: string[]) {
 }
 
 /** A numeric batch dimension shared by the fed inputs, or null when it is dynamic. */
-function fixedBatch(inputs: ValueInfo[]): number | null {
+export function fixedBatch(inputs: ValueInfo[]): number | null {
   let fixed: number | null = null;
   for (const i of inputs) {
     const f = batchPolicy(i).fixed;
@@ -196,37 +185,21 @@ function fixedBatch(inputs: ValueInfo[]): number | null {
 }
 
 /** Binds the study to this model + probe set; discards stale activations and scores when either changed. */
-function bindRun(db: Database.Database, info: ModelInfo, probes: ProbeSet, chunkSize: number, note: (m: string) => void): number {
-  const run = readRun(db);
-  if (run && run.modelFp === info.fingerprint && run.probesFp === probes.fingerprint) {
-    db.prepare(`UPDATE run SET model_path = ?, probes_dir = ? WHERE id = 1`).run(info.path, probes.dir);
-    return run.chunkSize;
+function bindToStudy(db: Database.Database, info: ModelInfo, probes: ProbeSet, chunkSize: number, note: (m: string) => void): number {
+  const bound = readBinding(db);
+  if (bound && bound.modelFp === info.fingerprint && bound.probesFp === probes.fingerprint) {
+    updateBindingPaths(db, info.path, probes.dir);
+    return bound.chunkSize;
   }
-  db.transaction(() => {
-    if (run) {
-      const what = [run.modelFp !== info.fingerprint ? 'model' : null, run.probesFp !== probes.fingerprint ? 'probe set' : null].filter(Boolean).join(' and ');
-      note(`The ${what} changed since this study was made: its cached activations and scores were discarded (review annotations are kept).`);
-      for (const t of ['unit_label', 'unit_score', 'score_run', 'relatedness', 'activation', 'chunk_done', 'layer', 'probe_label', 'label', 'concept', 'example', 'run']) {
-        db.prepare(`DELETE FROM ${t}`).run();
-      }
-    }
-    const t = now();
-    db.prepare(`INSERT INTO run (id, model_path, model_fp, model_json, probes_dir, probes_fp, probes_name, probe_count, chunk_size, created_at, updated_at)
-                VALUES (1, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
-      .run(info.path, info.fingerprint, JSON.stringify({ producer: info.producer, opset: info.opsetVersion, inputs: info.inputs, outputs: info.outputs, bytes: info.bytes }),
-        probes.dir, probes.fingerprint, probes.name, probes.count, chunkSize, t, t);
-    const insLabel = db.prepare(`INSERT INTO label (id, name) VALUES (?, ?)`);
-    probes.labels.forEach((name, id) => insLabel.run(id, name));
-    const insPL = db.prepare(`INSERT INTO probe_label (probe, label) VALUES (?, ?)`);
-    for (let p = 0; p < probes.count; p++) {
-      for (let k = probes.labelOffsets[p]; k < probes.labelOffsets[p + 1]; k++) insPL.run(p, probes.labelIds[k]);
-    }
-    const insC = db.prepare(`INSERT OR REPLACE INTO concept (label, grp, parent, description) VALUES (?, ?, ?, ?)`);
-    for (const c of probes.concepts ?? []) insC.run(c.label, c.group, c.parent ?? null, c.description ?? null);
-    const insE = db.prepare(`INSERT OR REPLACE INTO example (probe, ext_id, text, image) VALUES (?, ?, ?, ?)`);
-    for (const e of probes.examples ?? []) insE.run(e.probe, e.id ?? null, e.text ?? null, e.image ?? null);
-    if (probes.relatedness) db.prepare(`INSERT OR REPLACE INTO meta (key, value) VALUES ('relatedness_override', ?)`).run(JSON.stringify(probes.relatedness));
-  })();
+  if (bound) {
+    const what = [bound.modelFp !== info.fingerprint ? 'model' : null, bound.probesFp !== probes.fingerprint ? 'probe set' : null].filter(Boolean).join(' and ');
+    note(`The ${what} changed since this study was made: its cached activations and scores were discarded (review annotations are kept).`);
+  }
+  bindStudy(db,
+    { path: info.path, fingerprint: info.fingerprint, json: JSON.stringify({ producer: info.producer, opset: info.opsetVersion, inputs: info.inputs, outputs: info.outputs, bytes: info.bytes }) },
+    { dir: probes.dir, fingerprint: probes.fingerprint, name: probes.name, count: probes.count, labels: probes.labels, labelOffsets: probes.labelOffsets,
+      labelIds: probes.labelIds, concepts: probes.concepts, examples: probes.examples, relatedness: probes.relatedness },
+    chunkSize);
   return chunkSize;
 }
 
@@ -241,13 +214,10 @@ function upsertLayers(db: Database.Database, selected: ModelInfo['tensors'], sha
       const old = existing.get(t.name);
       if (old && (old.pool !== layerPool || JSON.stringify(old.dims) !== JSON.stringify(dims))) {
         note(`${t.name}: cached with pool ${old.pool}, now ${layerPool}; its cached activations were discarded.`);
-        db.prepare(`DELETE FROM layer WHERE id = ?`).run(old.id);
+        deleteLayer(db, old.id);
         existing.delete(t.name);
       }
-      if (!existing.has(t.name)) {
-        db.prepare(`INSERT INTO layer (name, op, node, position, dims_json, kind, units, pool) VALUES (?, ?, ?, ?, ?, ?, ?, ?)`)
-          .run(t.name, t.op, t.node, i, JSON.stringify(dims), layout.kind, layout.units, layerPool);
-      }
+      if (!existing.has(t.name)) insertLayer(db, { name: t.name, op: t.op, node: t.node, position: i, dims, kind: layout.kind, units: layout.units, pool: layerPool });
     });
   })();
   const names = new Set(selected.map((t) => t.name));
@@ -257,7 +227,7 @@ function upsertLayers(db: Database.Database, selected: ModelInfo['tensors'], sha
 type TypedData = Float32Array | Float64Array | Int32Array | BigInt64Array | Uint8Array;
 
 /** Builds feeds for a range of probes: probe-set inputs, fill values, and padding to a fixed batch. */
-class Feeder {
+export class Feeder {
   constructor(private info: ModelInfo, private probes: ProbeSet, private fillShapes: Record<string, number[]>, private fixed: number | null) {}
 
   feeds(start: number, count: number): Record<string, ort.Tensor> {

@@ -23,7 +23,7 @@ function namesInSubgraphs(graph: OnnxProto.IGraphProto, into = new Set<string>()
  * onnxruntime refuses external data for a model given as bytes (it only resolves data files relative to a
  * model path), so the rewritten model carries its weights inline.
  */
-function inlineExternalData(model: OnnxProto.ModelProto, modelPath: string): void {
+export function inlineExternalData(model: OnnxProto.ModelProto, modelPath: string): void {
   const refs = externalDataRefs(model, modelPath);
   if (refs.length === 0) return;
   const byName = new Map(refs.map((r) => [r.tensor, r]));

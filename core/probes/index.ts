@@ -8,3 +8,4 @@ export {
 } from './npy.ts';
 export { manifestSchema, type Manifest, type PreprocessSpec } from './manifest.ts';
 export { FEW_PROBES_PER_LABEL } from './tables.ts';
+export { readExampleImage, MAX_IMAGE_BYTES } from './example-image.ts';

@@ -8,7 +8,7 @@
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
-import { SkeinError } from '../errors.ts';
+import { writeDurably } from '../fs/index.ts';
 import { formatShape, probesError } from './fail.ts';
 import type { NpyDType } from './types.ts';
 
@@ -265,16 +265,13 @@ export function encodeNpyHeader(dtype: 'float32', shape: number[]): Buffer {
 }
 
 /**
- * Write a float32 .npy file atomically: to `file + '.tmp'`, fsync, then rename over `file`.
+ * Write a float32 .npy file with core/fs's durable write (temporary file, fsync, rename, fsync of the folder).
  * `data` is the whole C-order array or an iterable of consecutive chunks (e.g. one block of rows at a time).
  */
 export function writeNpyFloat32(file: string, shape: number[], data: Float32Array | Iterable<Float32Array>): void {
   const expected = shape.reduce((a, b) => a * b, 1);
   const header = encodeNpyHeader('float32', shape);
-  const tmp = `${file}.tmp`;
-  let fd: number | undefined;
-  try {
-    fd = fs.openSync(tmp, 'w');
+  writeDurably(file, (fd) => {
     writeAll(fd, header);
     let written = 0;
     for (const chunk of data instanceof Float32Array ? [data] : data) {
@@ -283,17 +280,7 @@ export function writeNpyFloat32(file: string, shape: number[], data: Float32Arra
       written += chunk.length;
     }
     if (written !== expected) throw new RangeError(`${written} values given for shape ${formatShape(shape)}, which needs ${expected}`);
-    fs.fsyncSync(fd);
-    fs.closeSync(fd);
-    fd = undefined;
-    fs.renameSync(tmp, file);
-  } catch (e) {
-    if (fd !== undefined) fs.closeSync(fd);
-    fs.rmSync(tmp, { force: true });
-    if (e instanceof SkeinError || e instanceof RangeError) throw e;
-    const code = (e as NodeJS.ErrnoException).code ?? (e as Error).message;
-    throw new SkeinError({ code: 'io', file, message: `Could not write the array (${code}); check the folder exists, is writable and has free space.` });
-  }
+  });
 }
 
 function writeAll(fd: number, bytes: Uint8Array): void {

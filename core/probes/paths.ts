@@ -1,12 +1,13 @@
 /** Files a probe set names must stay inside its folder, even through ".." or symbolic links. */
 import fs from 'node:fs';
 import path from 'node:path';
+import { isInside } from '../fs/index.ts';
 import { probesError } from './fail.ts';
 
 export interface FolderRoot {
   /** The folder as the user gave it, made absolute: used in messages and for reading. */
   dir: string;
-  /** fs.realpathSync(dir): used for the containment check. */
+  /** fs.realpathSync(dir): canonical names are relative to it. */
   real: string;
 }
 
@@ -15,11 +16,6 @@ export interface ResolvedFile {
   file: string;
   /** Canonical name relative to the real folder, with "/" separators (used in the fingerprint). */
   canonical: string;
-}
-
-function isInside(rootReal: string, candidate: string): boolean {
-  const rel = path.relative(rootReal, candidate);
-  return rel !== '' && !rel.startsWith('..') && !path.isAbsolute(rel);
 }
 
 /**
@@ -31,14 +27,14 @@ export function resolveInside(root: FolderRoot, rel: string, at: { file: string;
     `${what} "${rel}" escapes the probe-set folder; put the file inside ${root.dir} and give its path relative to that folder`);
   if (path.isAbsolute(rel) || path.win32.isAbsolute(rel)) throw escapes();
   const file = path.resolve(root.dir, rel);
-  if (!isInside(root.dir, file)) throw escapes();
+  // The folder itself is no file inside it; isInside counts it as inside, so it is refused here by name.
+  if (file === path.resolve(root.dir) || !isInside(root.dir, file)) throw escapes();
   let real: string;
   try {
     real = fs.realpathSync(file);
   } catch {
     throw probesError(at.file, at.where, `${what} "${rel}" was not found in ${root.dir}; check the name (it is relative to the probe-set folder)`);
   }
-  if (!isInside(root.real, real)) throw escapes();
   if (!fs.statSync(real).isFile()) throw probesError(at.file, at.where, `${what} "${rel}" is not a file; name a file inside the probe-set folder`);
   return { file, canonical: path.relative(root.real, real).split(path.sep).join('/') };
 }

@@ -3,23 +3,8 @@
  * its entries does (OR). `units` is an explicit selection (the rows picked in the unit table); in a report it may name
  * units nobody annotated yet.
  */
-import { z } from 'zod';
-import { reviewerSchema, statusSchema, tagSchema } from './vocabulary.ts';
+import type { ReviewFilter } from './vocabulary.ts';
 import type { Annotation } from './store.ts';
-
-export const filterSchema = z.strictObject({
-  tags: z.array(tagSchema).min(1).max(64).optional(),
-  statuses: z.array(statusSchema).min(1).max(16).optional(),
-  layers: z.array(z.string().min(1).max(1024)).min(1).max(10_000).optional(),
-  units: z.array(z.strictObject({ layer: z.string().min(1).max(1024), unit: z.number().int().min(0) })).min(1).max(100_000).optional(),
-  reviewers: z.array(reviewerSchema).min(1).max(64).optional(),
-  /** Only units with unresolved conflicts (true) or without (false). */
-  conflicted: z.boolean().optional(),
-  /** Case-insensitive text the note must contain. */
-  text: z.string().min(1).max(200).optional(),
-});
-
-export type ReviewFilter = z.infer<typeof filterSchema>;
 
 /** The unit has something a reviewer wrote: a tag, a note, a status or an open conflict. */
 export function hasContent(a: Annotation): boolean {

@@ -8,7 +8,7 @@
 import crypto from 'node:crypto';
 import type Database from 'better-sqlite3';
 import { SkeinError } from '../errors.ts';
-import { readLayers, type LayerRow } from '../store/study.ts';
+import { readLayers, type LayerRow } from '../store/binding.ts';
 import type { ReviewBundle } from './bundle.ts';
 import type { ReviewEvent } from './merge.ts';
 import {

@@ -8,5 +8,4 @@ export * from './import.ts';
 export * from './note.ts';
 export * from './prefs.ts';
 export * from './report.ts';
-export { writeFileDurably } from './files.ts';
 export { readJsonStrict, JsonReadError } from './json.ts';

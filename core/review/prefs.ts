@@ -5,7 +5,7 @@
  */
 import fs from 'node:fs';
 import path from 'node:path';
-import { writeFileDurably } from './files.ts';
+import { writeFileDurably } from '../fs/index.ts';
 import { reviewerSchema } from './vocabulary.ts';
 
 export interface Preferences {

@@ -7,10 +7,12 @@ import crypto from 'node:crypto';
 import path from 'node:path';
 import type Database from 'better-sqlite3';
 import { stringify } from 'csv-stringify/sync';
-import { readLayers, readRun, now } from '../store/study.ts';
-import { requireScores, unitDetail, type UnitDetail } from '../store/queries.ts';
-import { exampleImage, probeLabels, unitDistributions, unitTable, type UnitDistributions } from '../store/views.ts';
-import { describeFilter, filterPredicate, hasContent, selectionKey, type ReviewFilter } from './filter.ts';
+import { now } from '../store/study.ts';
+import { readLayers, readBinding } from '../store/binding.ts';
+import { requireScores, rankOfUnit } from '../store/scores.ts';
+import { exampleImage, probeLabels, unitDetail, unitDistributions, unitTable, type UnitDetail, type UnitDistributions } from '../api/screens/read-models.ts';
+import { describeFilter, filterPredicate, hasContent, selectionKey } from './filter.ts';
+import type { ReviewFilter } from './vocabulary.ts';
 import { renderNote } from './note.ts';
 import {
   conflictDetails, emptyAnnotation, eventsOfUnit, listAnnotations, studyFingerprints,
@@ -55,7 +57,7 @@ export interface ReportData {
 /** Gathers the units the filter selects, most polysemantic first, with what the report shows of each. */
 export function gatherReport(db: Database.Database, studyFile: string, filter: ReviewFilter, generatedBy: string | null): ReportData {
   requireScores(db, studyFile);
-  const run = readRun(db)!;
+  const binding = readBinding(db)!;
   const fps = studyFingerprints(db, studyFile);
   const layers = new Map(readLayers(db).map((l) => [l.name, l]));
   const annotations = new Map(listAnnotations(db, fps).map((a) => [selectionKey(a.layer, a.unit), a]));
@@ -66,8 +68,7 @@ export function gatherReport(db: Database.Database, studyFile: string, filter: R
     if (!candidates.has(k)) candidates.set(k, annotations.get(k) ?? emptyAnnotation(u.layer, u.unit));
   }
   const chosen = [...candidates.values()].filter(filterPredicate(filter));
-  const rankOf = db.prepare(`SELECT s.rank FROM unit_score s JOIN layer l ON l.id = s.layer_id WHERE l.name = ? AND s.unit = ?`).pluck();
-  const ranked = chosen.map((a) => ({ a, rank: (rankOf.get(a.layer, a.unit) as number | undefined) ?? Number.MAX_SAFE_INTEGER }))
+  const ranked = chosen.map((a) => ({ a, rank: rankOfUnit(db, a.layer, a.unit) ?? Number.MAX_SAFE_INTEGER }))
     .sort((x, y) => x.rank - y.rank || x.a.layer.localeCompare(y.a.layer) || x.a.unit - y.a.unit);
 
   const units: ReportUnit[] = ranked.map(({ a }, i) => {
@@ -109,8 +110,8 @@ export function gatherReport(db: Database.Database, studyFile: string, filter: R
   const all = table.conceptCount.map((x, i) => ({ x: x ?? NaN, y: table.selectivity[i] ?? NaN }));
   return {
     studyFile: path.resolve(studyFile), generatedAt: now(), generatedBy,
-    model: { path: run.modelPath, fingerprint: run.modelFp },
-    probes: { name: run.probesName, fingerprint: run.probesFp, count: run.probeCount },
+    model: { path: binding.modelPath, fingerprint: binding.modelFp },
+    probes: { name: binding.probesName, fingerprint: binding.probesFp, count: binding.probeCount },
     selection: describeFilter(filter), units, all,
   };
 }

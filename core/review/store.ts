@@ -8,42 +8,20 @@
 import crypto from 'node:crypto';
 import type Database from 'better-sqlite3';
 import { SkeinError, type ErrorInfo } from '../errors.ts';
-import { findLayer, readRun, now } from '../store/study.ts';
+import { now } from '../store/study.ts';
+import { findLayer, readBinding } from '../store/binding.ts';
+import {
+  readAnnotationRow, listAnnotations, otherFingerprints, writeAnnotation, eventsOfUnit, findEvent, insertEvent, undoneEdits, localEditsNewestFirst,
+  type Annotation, type Fingerprints, type StoredEvent, type UnitKey,
+} from '../store/annotations.ts';
 import { byField, commonBase, fieldOutcome, headsOf, newestFirst, type ReviewEvent } from './merge.ts';
 import {
   DEFAULT_STATUS, MAX_TAGS_PER_UNIT, defaultValue, fieldLabel, isTagField, tagField, valueProblem,
   type Field, type FieldValue, type Status,
 } from './vocabulary.ts';
 
-export interface Fingerprints { modelFp: string; probesFp: string }
-export interface UnitKey extends Fingerprints { layer: string; unit: number }
-
-/** One unit's review state as the screens show it. */
-export interface Annotation {
-  layer: string;
-  unit: number;
-  /** Sorted. */
-  tags: string[];
-  /** Plain text / Markdown source; render with renderNote. */
-  note: string;
-  status: Status;
-  /** Fields changed on two sides that nobody has resolved yet; the value shown for them is this study's own. */
-  conflicts: Field[];
-  /** Who made the newest change, and when; null for a unit nobody annotated. */
-  reviewer: string | null;
-  createdAt: string | null;
-  updatedAt: string | null;
-  /** Send this back with the next edit; 0 for a unit nobody annotated. */
-  version: number;
-}
-
-export interface StoredEvent extends ReviewEvent {
-  /** Local arrival order. */
-  seq: number;
-  origin: 'local' | 'import';
-  /** The bundle's own event id when the event was imported under a layer mapping. */
-  sourceId: string | null;
-}
+export { listAnnotations, otherFingerprints, eventsOfUnit, findEvent, insertEvent };
+export type { Annotation, Fingerprints, StoredEvent, UnitKey };
 
 export interface ConflictSide { value: FieldValue; author: string | null; at: string | null }
 
@@ -82,9 +60,9 @@ export class ReviewConflictError extends SkeinError {
 }
 
 export function studyFingerprints(db: Database.Database, file?: string): Fingerprints {
-  const run = readRun(db);
-  if (!run) throw new SkeinError({ code: 'study', file, message: 'This study has no scan yet, so there are no units to review. Run skein scan into it first.' });
-  return { modelFp: run.modelFp, probesFp: run.probesFp };
+  const binding = readBinding(db);
+  if (!binding) throw new SkeinError({ code: 'study', file, message: 'This study has no scan yet, so there are no units to review. Run skein scan into it first.' });
+  return { modelFp: binding.modelFp, probesFp: binding.probesFp };
 }
 
 /** The key of a unit of this study; the layer may be named by tensor or node name, the key uses the tensor name. */
@@ -97,68 +75,12 @@ export function unitKey(db: Database.Database, layer: string, unit: number, file
   return { ...fps, layer: l.name, unit };
 }
 
-interface AnnotationRow {
-  layer: string; unit: number; tags: string; note: string; status: string; conflicts: string;
-  reviewer: string | null; created_at: string | null; updated_at: string | null; version: number;
-}
-
-function fromRow(r: AnnotationRow): Annotation {
-  return {
-    layer: r.layer, unit: r.unit, tags: JSON.parse(r.tags), note: r.note, status: r.status as Status,
-    conflicts: JSON.parse(r.conflicts), reviewer: r.reviewer, createdAt: r.created_at, updatedAt: r.updated_at, version: r.version,
-  };
-}
-
 export function emptyAnnotation(layer: string, unit: number): Annotation {
   return { layer, unit, tags: [], note: '', status: DEFAULT_STATUS, conflicts: [], reviewer: null, createdAt: null, updatedAt: null, version: 0 };
 }
 
 export function readAnnotation(db: Database.Database, key: UnitKey): Annotation {
-  const r = db.prepare(`SELECT * FROM annotation WHERE model_fp = ? AND probes_fp = ? AND layer = ? AND unit = ?`)
-    .get(key.modelFp, key.probesFp, key.layer, key.unit) as AnnotationRow | undefined;
-  return r ? fromRow(r) : emptyAnnotation(key.layer, key.unit);
-}
-
-/** Annotations of the given fingerprints, by layer then unit. */
-export function listAnnotations(db: Database.Database, fps: Fingerprints): Annotation[] {
-  return (db.prepare(`SELECT * FROM annotation WHERE model_fp = ? AND probes_fp = ? ORDER BY layer, unit`).all(fps.modelFp, fps.probesFp) as AnnotationRow[]).map(fromRow);
-}
-
-/** Annotated units kept for other model / probe-set fingerprints (earlier scans of this study). */
-export function otherFingerprints(db: Database.Database, fps: Fingerprints): { modelFp: string; probesFp: string; units: number }[] {
-  return (db.prepare(`SELECT model_fp, probes_fp, count(*) AS n FROM annotation WHERE NOT (model_fp = ? AND probes_fp = ?) GROUP BY 1, 2 ORDER BY 1, 2`)
-    .all(fps.modelFp, fps.probesFp) as { model_fp: string; probes_fp: string; n: number }[]).map((r) => ({ modelFp: r.model_fp, probesFp: r.probes_fp, units: r.n }));
-}
-
-interface EventRow {
-  seq: number; id: string; field: string; old_value: string; new_value: string; parents: string;
-  author: string; at: string; edit: string; undoes: string | null; origin: string; source_id: string | null;
-}
-
-function eventFromRow(r: EventRow): StoredEvent {
-  return {
-    seq: r.seq, id: r.id, field: r.field as Field, old: JSON.parse(r.old_value), new: JSON.parse(r.new_value),
-    parents: JSON.parse(r.parents), author: r.author, at: r.at, edit: r.edit, undoes: r.undoes,
-    origin: r.origin as StoredEvent['origin'], sourceId: r.source_id,
-  };
-}
-
-/** One unit's whole history, in local arrival order (parents always before their children). */
-export function eventsOfUnit(db: Database.Database, key: UnitKey): StoredEvent[] {
-  return (db.prepare(`SELECT * FROM annotation_event WHERE model_fp = ? AND probes_fp = ? AND layer = ? AND unit = ? ORDER BY seq`)
-    .all(key.modelFp, key.probesFp, key.layer, key.unit) as EventRow[]).map(eventFromRow);
-}
-
-export function findEvent(db: Database.Database, id: string): (StoredEvent & UnitKey) | null {
-  const r = db.prepare(`SELECT * FROM annotation_event WHERE id = ?`).get(id) as (EventRow & { model_fp: string; probes_fp: string; layer: string; unit: number }) | undefined;
-  return r ? { ...eventFromRow(r), modelFp: r.model_fp, probesFp: r.probes_fp, layer: r.layer, unit: r.unit } : null;
-}
-
-export function insertEvent(db: Database.Database, key: UnitKey, e: ReviewEvent, origin: StoredEvent['origin'], sourceId: string | null = null): void {
-  db.prepare(`INSERT INTO annotation_event (id, model_fp, probes_fp, layer, unit, field, old_value, new_value, parents, author, at, edit, undoes, origin, source_id)
-              VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
-    .run(e.id, key.modelFp, key.probesFp, key.layer, key.unit, e.field, JSON.stringify(e.old), JSON.stringify(e.new),
-      JSON.stringify(e.parents), e.author, e.at, e.edit, e.undoes, origin, sourceId);
+  return readAnnotationRow(db, key) ?? emptyAnnotation(key.layer, key.unit);
 }
 
 /** The value an annotation shows for a field. */
@@ -205,15 +127,7 @@ export function deriveAnnotation(events: readonly ReviewEvent[], prior: Annotati
 /** Recomputes a unit's row from its events and writes it, one version on; refused if someone else wrote it meanwhile. */
 export function rematerialize(db: Database.Database, key: UnitKey, prior: Annotation): Annotation {
   const next = { ...deriveAnnotation(eventsOfUnit(db, key), prior), version: prior.version + 1 };
-  const r = db.prepare(`INSERT INTO annotation (model_fp, probes_fp, layer, unit, tags, note, status, conflicts, reviewer, created_at, updated_at, version)
-      VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
-      ON CONFLICT (model_fp, probes_fp, layer, unit) DO UPDATE SET tags = excluded.tags, note = excluded.note, status = excluded.status,
-        conflicts = excluded.conflicts, reviewer = excluded.reviewer, created_at = excluded.created_at, updated_at = excluded.updated_at,
-        version = excluded.version
-      WHERE annotation.version = ?`)
-    .run(key.modelFp, key.probesFp, key.layer, key.unit, JSON.stringify(next.tags), next.note, next.status, JSON.stringify(next.conflicts),
-      next.reviewer, next.createdAt, next.updatedAt, next.version, prior.version);
-  if (r.changes !== 1) throw staleVersion(db, key, prior.version);
+  if (!writeAnnotation(db, key, next, prior.version)) throw staleVersion(db, key, prior.version);
   return next;
 }
 
@@ -290,10 +204,8 @@ export interface UndoResult {
 /** Reverts this reviewer's newest edit not yet undone (in this study's current fingerprints) with new events. */
 export function undoLast(db: Database.Database, fps: Fingerprints, reviewer: string): UndoResult {
   return db.transaction((): UndoResult => {
-    const undone = new Set(db.prepare(`SELECT DISTINCT undoes FROM annotation_event WHERE undoes IS NOT NULL AND model_fp = ? AND probes_fp = ?`)
-      .pluck().all(fps.modelFp, fps.probesFp) as string[]);
-    const candidates = db.prepare(`SELECT edit, layer, unit FROM annotation_event WHERE model_fp = ? AND probes_fp = ? AND author = ? AND origin = 'local' AND undoes IS NULL ORDER BY seq DESC`)
-      .iterate(fps.modelFp, fps.probesFp, reviewer) as IterableIterator<{ edit: string; layer: string; unit: number }>;
+    const undone = undoneEdits(db, fps);
+    const candidates = localEditsNewestFirst(db, fps, reviewer);
     let target: { edit: string; layer: string; unit: number } | null = null;
     for (const c of candidates) if (!undone.has(c.edit)) { target = c; break; }
     if (!target) return { undone: null, annotation: null };

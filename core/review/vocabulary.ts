@@ -94,3 +94,21 @@ export function typeName(v: unknown): string {
 export function fieldLabel(field: Field): string {
   return isTagField(field) ? `tag ${field.slice(4)}` : field;
 }
+
+/**
+ * Which units an export or a report takes: every criterion given must hold (AND); a list criterion holds when any of
+ * its entries does (OR). Here beside the other schemas so the API contract can use it without loading review logic.
+ */
+export const filterSchema = z.strictObject({
+  tags: z.array(tagSchema).min(1).max(64).optional(),
+  statuses: z.array(statusSchema).min(1).max(16).optional(),
+  layers: z.array(z.string().min(1).max(1024)).min(1).max(10_000).optional(),
+  units: z.array(z.strictObject({ layer: z.string().min(1).max(1024), unit: z.number().int().min(0) })).min(1).max(100_000).optional(),
+  reviewers: z.array(reviewerSchema).min(1).max(64).optional(),
+  /** Only units with unresolved conflicts (true) or without (false). */
+  conflicted: z.boolean().optional(),
+  /** Case-insensitive text the note must contain. */
+  text: z.string().min(1).max(200).optional(),
+});
+
+export type ReviewFilter = z.infer<typeof filterSchema>;

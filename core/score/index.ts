@@ -5,5 +5,6 @@ export { PreparedLabels, prepareLabels } from './labels.ts';
 export { explainTopSet } from './explain.ts';
 export { Scratch, createScratch, defaultScoreOptions, scoreUnitPartial, validateScoreOptions } from './unit.ts';
 export { finishLayer, isDead, isDense, rankUnits } from './layer.ts';
+export { UNIT_KINDS, classifyUnit, type UnitKind } from './kind.ts';
 export { buildRelatedness, SAME_GROUP_RELATEDNESS, SAME_PARENT_RELATEDNESS, type RelatednessOptions } from './relatedness.ts';
 export { WordNet, installedWordNet } from './wordnet.ts';

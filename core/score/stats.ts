@@ -214,3 +214,25 @@ export function mannWhitneyGreaterP(u: number, n1: number, n0: number, tieSum: n
   const z = (u - (n1 * n0) / 2 - 0.5) / Math.sqrt(variance);
   return normalUpperTail(z);
 }
+
+/** Bin of v among `bins` equal-width bins starting at `min` (the last bin is closed on the right; numpy.histogram's convention). */
+export function binOf(v: number, min: number, width: number, bins: number): number {
+  if (!(width > 0)) return 0;
+  const b = Math.floor((v - min) / width);
+  return b < 0 ? 0 : b >= bins ? bins - 1 : b;
+}
+
+/** Pearson correlation of two equal-length samples given their means (Pearson 1895); NaN when either is constant. */
+export function pearson(a: Float32Array, meanA: number, b: Float32Array, meanB: number, n: number): number {
+  let sab = 0;
+  let saa = 0;
+  let sbb = 0;
+  for (let i = 0; i < n; i++) {
+    const da = a[i] - meanA;
+    const db = b[i] - meanB;
+    sab += da * db;
+    saa += da * da;
+    sbb += db * db;
+  }
+  return saa > 0 && sbb > 0 ? sab / Math.sqrt(saa * sbb) : NaN;
+}

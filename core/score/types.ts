@@ -20,6 +20,8 @@ export interface ScoreOptions {
   densePreference: number;  // default 0.1
   /** Number of top examples kept per unit. */
   topExamples: number;      // default 24
+  /** A unit is called mixed (polysemantic) when its concept count is at least this: half-way between one and two effective concepts. */
+  polysemanticAt: number;   // default 1.5
 }
 
 /** The labels of a probe set in the form the statistics need. */

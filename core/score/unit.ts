@@ -36,6 +36,7 @@ export const defaultScoreOptions: ScoreOptions = Object.freeze({
   denseFraction: 0.5,
   densePreference: 0.1,
   topExamples: 24,
+  polysemanticAt: 1.5,
 });
 
 function optionError(field: keyof ScoreOptions, message: string): SkeinError {
@@ -66,6 +67,9 @@ export function validateScoreOptions(opts: ScoreOptions): void {
   }
   if (!(opts.diversityOrder >= 0)) {
     throw optionError('diversityOrder', `diversityOrder must be 0 or more (Infinity allowed); got ${opts.diversityOrder}.`);
+  }
+  if (!(opts.polysemanticAt > 0 && Number.isFinite(opts.polysemanticAt))) {
+    throw optionError('polysemanticAt', `polysemanticAt must be a concept count above 0; got ${opts.polysemanticAt}.`);
   }
   if (opts.deadFraction > opts.denseFraction) {
     throw optionError('deadFraction', `deadFraction (${opts.deadFraction}) must not exceed denseFraction (${opts.denseFraction}).`);

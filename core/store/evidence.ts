@@ -24,14 +24,14 @@ export interface RankNeighbour { layer: string; unit: number; rank: number; conc
 
 /** The units ranked just above and just below position `rank`, and how many units are ranked in all. */
 export function rankNeighbours(db: Database.Database, rank: number): { total: number; above: RankNeighbour | null; below: RankNeighbour | null } {
-  const stmt = db.prepare(`SELECT l.name AS layer, s.unit, s.rank, s.concept_count AS conceptCount, s.evidence, s.flags
+  const stmt = db.prepare(`SELECT l.name AS layer, s.unit, s.rank, s.concept_count AS conceptCount, s.evidence, s.dead, s.dense
       FROM unit_score s JOIN layer l ON l.id = s.layer_id WHERE s.rank = ?`);
   const at = (r: number): RankNeighbour | null => {
     if (r < 0) return null;
-    const row = stmt.get(r) as (Omit<RankNeighbour, 'flagged'> & { flags: string }) | undefined;
+    const row = stmt.get(r) as (Omit<RankNeighbour, 'flagged'> & { dead: number; dense: number }) | undefined;
     if (!row) return null;
-    const { flags, ...rest } = row;
-    return { ...rest, flagged: (JSON.parse(flags) as string[]).length > 0 };
+    const { dead, dense, ...rest } = row;
+    return { ...rest, flagged: dead === 1 || dense === 1 };
   };
   return { total: db.prepare(`SELECT count(*) FROM unit_score`).pluck().get() as number, above: at(rank - 1), below: at(rank + 1) };
 }

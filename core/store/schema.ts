@@ -126,7 +126,52 @@ export const migrations: string[] = [
   CREATE TRIGGER annotation_event_no_delete BEFORE DELETE ON annotation_event
     BEGIN SELECT RAISE(ABORT, 'review history is append-only'); END;
   `,
-  // 2 → 3: the joint driver model (core/score/joint.ts). `unit_driver` is the normalised driver table the screens
+  // 2 → 3: ablations (core/intervene). A run is one setup (layer, mode, probes used, targets) keyed by a hash of
+  // everything its results depend on; each unit's cost is committed alone, so a cancelled bulk pass resumes.
+  `
+  CREATE TABLE ablation_run (
+    id INTEGER PRIMARY KEY,
+    key TEXT NOT NULL UNIQUE,             -- SHA-256 of model/probe fingerprints, layer, mode, value, sample, seed, targets
+    model_fp TEXT NOT NULL, probes_fp TEXT NOT NULL,
+    layer TEXT NOT NULL, mode TEXT NOT NULL, value REAL,
+    sample INTEGER,                       -- probes used when a seeded sample, NULL for every probe
+    seed INTEGER NOT NULL, probes INTEGER NOT NULL,
+    metric TEXT NOT NULL, floor REAL NOT NULL, output TEXT NOT NULL, units INTEGER NOT NULL,
+    created_at TEXT NOT NULL, updated_at TEXT NOT NULL
+  );
+  CREATE INDEX ablation_run_layer ON ablation_run(layer, updated_at);
+  CREATE TABLE ablation_unit (
+    run_id INTEGER NOT NULL REFERENCES ablation_run(id) ON DELETE CASCADE,
+    unit INTEGER NOT NULL,
+    hurt_count INTEGER NOT NULL, concepts_hurt REAL NOT NULL,
+    largest_label TEXT, largest_mean REAL,
+    reps INTEGER NOT NULL,                -- bootstrap resamples behind the stored intervals
+    cost TEXT NOT NULL,                   -- JSON: per-label means, intervals, p, q, hurt, accuracy
+    at TEXT NOT NULL,
+    PRIMARY KEY (run_id, unit)
+  ) WITHOUT ROWID;
+  `,
+  // 3 → 4: dead and dense as typed columns instead of words inside a JSON array (read without text matching).
+  `
+  ALTER TABLE unit_score ADD COLUMN dead INTEGER NOT NULL DEFAULT 0 CHECK (dead IN (0, 1));
+  ALTER TABLE unit_score ADD COLUMN dense INTEGER NOT NULL DEFAULT 0 CHECK (dense IN (0, 1));
+  UPDATE unit_score SET
+    dead = EXISTS (SELECT 1 FROM json_each(unit_score.flags) WHERE value = 'dead'),
+    dense = EXISTS (SELECT 1 FROM json_each(unit_score.flags) WHERE value = 'dense');
+  ALTER TABLE unit_score DROP COLUMN flags;
+  `,
+  // 4 → 5: the superposition lens (core/geometry), cached per layer and reused while `key` (a hash of everything
+  // it depends on) matches; deleted with its layer.
+  `
+  CREATE TABLE lens (
+    layer_id INTEGER PRIMARY KEY REFERENCES layer(id) ON DELETE CASCADE,
+    key TEXT NOT NULL,
+    result_json TEXT NOT NULL,            -- the figures (core/geometry/lens.ts LensResult)
+    directions BLOB NOT NULL,             -- float32 [concepts × units], row-major: the concept directions
+    computed_at TEXT NOT NULL
+  );
+  `,
+  // 5 → 6: the joint driver model (core/score/joint.ts). `unit_driver` is the normalised driver table the screens
   // and exports read: one row per driver, modulator or nested label of a unit. `layer_null` holds the shuffled-label
   // baseline per layer. Stored scores from before are discarded (score_run emptied), so the next scan rescores.
   `

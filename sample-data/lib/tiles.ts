@@ -1,6 +1,7 @@
 /** Builds the "tiles" demo: the probe-set folder and the trained ONNX classifier, byte-identical on every run. */
 import fs from 'node:fs';
 import path from 'node:path';
+import { writeFileDurably } from '../../core/fs/index.ts';
 import { encodeCsv, encodeNpyFloat32, encodeTilePng } from './files';
 import { calibrateBiases, evaluate, initParams, roundedToFloat32, train, type NetParams, type NetShape, type TrainOptions } from './net';
 import { encodeTilesModel, MODEL_INPUT } from './onnx-export';
@@ -70,6 +71,12 @@ export function probeSetFiles(set: TileSet): Map<string, Uint8Array | string> {
     for (let f = 0; f < FAMILY_COUNT; f++) labelRows.push([i, CONCEPTS[conceptIndex(set, i, f)].label]);
   }
   files.set('labels.csv', encodeCsv(['probe', 'label'], labelRows));
+  // What the classifier should answer: its output rows follow concepts.csv, so each label is a class index.
+  const targetRows: (string | number)[][] = [];
+  for (let i = 0; i < set.count; i++) {
+    for (let f = 0; f < FAMILY_COUNT; f++) targetRows.push([i, 'attributes', conceptIndex(set, i, f)]);
+  }
+  files.set('targets.csv', encodeCsv(['probe', 'output', 'value'], targetRows));
   files.set(
     'concepts.csv',
     encodeCsv(['label', 'group', 'parent', 'description'], CONCEPTS.map((c) => [c.label, c.group, c.parent, c.description])),
@@ -105,11 +112,6 @@ function writeFolder(dir: string, files: Map<string, Uint8Array | string>): void
   fs.renameSync(staging, dir);
 }
 
-function writeFileAtomically(file: string, bytes: Uint8Array): void {
-  const staging = `${file}.partial`;
-  fs.writeFileSync(staging, bytes);
-  fs.renameSync(staging, file);
-}
 
 export function trainTilesModel(trainCount: number, epochs: number): { params: NetParams; epochLosses: number[]; trainSet: TileSet } {
   const trainSet = generateTiles(SEEDS.train, trainCount);
@@ -126,7 +128,7 @@ export function buildTiles(opts: BuildOptions): BuildResult {
   const probeDir = path.join(opts.outDir, PROBE_SET_FOLDER);
   const modelPath = path.join(opts.outDir, MODEL_FILE);
   writeFolder(probeDir, probeSetFiles(probes));
-  writeFileAtomically(modelPath, encodeTilesModel(params));
+  writeFileDurably(modelPath, encodeTilesModel(params));
   return {
     probeDir,
     modelPath,

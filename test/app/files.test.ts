@@ -127,7 +127,7 @@ describe('study.saveAs', () => {
       b.close();
     }
     expect(fs.readFileSync(from).equals(before)).toBe(true);
-    expect(fs.readdirSync(data).filter((n) => n.includes('.tmp-'))).toEqual([]);
+    expect(fs.readdirSync(data).filter((n) => n.includes('.tmp'))).toEqual([]); // no temporary file of the durable write is left
   });
 
   it('refuses the study itself, a name without .study, a file that is no study, and a target outside the roots', async () => {

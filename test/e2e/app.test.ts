@@ -13,7 +13,7 @@ import { build } from 'vite';
 import { chromium, type BrowserContext, type Page } from 'playwright-core';
 import { startServer, type RunningServer } from '../../app/server/index.ts';
 import { sampleDataDir } from '../../core/api/files.ts';
-import { runScan } from '../../core/api/index.ts';
+import { createApi, runScan } from '../../core/api/index.ts';
 import { wideFixture, slowFixture, type Fixture } from './fixtures.ts';
 
 const repo = fileURLToPath(new URL('../../', import.meta.url));
@@ -110,8 +110,11 @@ describe('Skein in Chromium (browser mode)', () => {
     await page.locator('[data-open-demo]').click();
     await page.getByRole('heading', { name: 'Capture' }).waitFor();
     await page.locator('[data-tensors] tbody tr').first().waitFor();
-    // Defaults are preselected: at least one tensor ticked before the user touches anything.
-    expect(await page.locator('[data-tensors] input[type="checkbox"]:checked').count()).toBeGreaterThan(0);
+    // Defaults are preselected: exactly the tensors core/model marks as scanned by default, before the user touches anything.
+    const info = await createApi()['model.layers']({ model: path.join(sampleDataDir(), 'tiles-model.onnx') });
+    const defaults = info.tensors.filter((t) => t.isDefault && t.capturable).map((t) => t.name);
+    expect(defaults.length).toBeGreaterThanOrEqual(2); // the demo model has a conv and a dense stage (sample-data/README.md)
+    expect(await page.locator('[data-tensors] tr:has(input[type="checkbox"]:checked)').evaluateAll((trs) => trs.map((tr) => tr.getAttribute('data-tensor')))).toEqual(defaults);
     await shot('capture-light');
     await page.locator('[data-start-scan]').click();
     await page.locator('[data-job-state]').waitFor();
@@ -186,7 +189,11 @@ describe('Skein in Chromium (browser mode)', () => {
     await page.locator('[data-driver-filter]').blur();
     await page.locator(`.body .row .chip.active`).first().waitFor();
     const rows = await page.locator('.body .row').count();
-    expect(rows).toBeGreaterThan(0);
+    // Exactly the units the API says the label drives (the demo has few enough that every row is rendered).
+    const reach = await createApi({ dataDir: path.join(tmp, 'home') })['concept.units']({ study: path.join(tmp, 'home', 'demo.study'), label });
+    expect(reach.driverOf).toBeLessThan(40);
+    expect(Number(await page.locator('[data-row-count]').getAttribute('data-row-count'))).toBe(reach.driverOf);
+    expect(rows).toBe(reach.driverOf);
     expect(await page.locator('.body .row:has(.chip.active)').count()).toBe(rows);
     await shot('roster-filtered-dark');
   });
@@ -231,14 +238,27 @@ describe('Skein in Chromium (browser mode)', () => {
     await page.keyboard.press('l');
     await page.getByRole('heading', { name: 'Strata' }).waitFor();
     await page.locator('[data-plot="layer-kinds"] .bars path').first().waitFor({ state: 'attached' });
+    // The table shows, per layer, the unit count and the mixed count core classified (layers.strata of the demo study).
+    const api = createApi({ dataDir: path.join(tmp, 'home') });
+    const demo = path.join(tmp, 'home', 'demo.study');
+    const overview = await api['layers.strata']({ study: demo });
+    const shown = await page.locator('[data-strata-table] tbody tr').evaluateAll((trs) => trs.map((tr) => {
+      const cells = [...tr.querySelectorAll('td')].map((td) => td.textContent!.trim());
+      return { name: cells[0], units: Number(cells[2].replace(/,/g, '')), mixed: Number(tr.querySelector('td.mixed .muted')!.textContent!.replace(/,/g, '')) };
+    }));
+    expect(shown).toEqual(overview.layers.map((l) => ({ name: l.name, units: l.units, mixed: l.mixed })));
     await shot('strata-dark');
     await page.locator('[data-theme-toggle]').click();
     await shot('strata-light');
     await page.keyboard.press('c');
     await page.locator('[data-label-list] tbody tr').first().waitFor();
     await shot('reach-list-light');
+    const firstLabel = (await page.locator('[data-label-list] tbody tr').first().locator('td').first().textContent())!.trim();
     await page.locator('[data-label-list] tbody tr').first().click();
     await page.locator('[data-driver-of]').waitFor();
+    // The label's reach as the API computes it: units it drives, of all scored units.
+    const reach = await api['concept.units']({ study: demo, label: firstLabel });
+    expect((await page.locator('[data-driver-of]').textContent())!.replace(/,/g, '').replace(/\s+/g, ' ').trim()).toBe(`${reach.driverOf} of ${reach.totalUnits}`);
     await page.locator('[data-plot="auroc-histogram"] .bars path').first().waitFor({ state: 'attached' });
     await shot('reach-light');
   });

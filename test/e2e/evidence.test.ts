@@ -137,6 +137,9 @@ describe('Unit evidence in Chromium (browser mode)', () => {
     const orangeOnly = labels.filter((ls) => ls.includes('orange')).length; // one hue per probe: never with red
     await open(profile(planted, 'planted', unit));
     await page.locator('[data-response-table]').waitFor();
+    await page.locator('[data-unit-title]').click();
+    await page.keyboard.press('w');
+    expect(await page.evaluate(() => document.activeElement?.hasAttribute('data-weigh-input'))).toBe(true);
     await page.locator('[data-weigh-input]').fill('red, mauve');
     await page.locator('[data-weigh] button[type="submit"]').click();
     expect(await page.locator('[data-weigh] [role="alert"]').textContent()).toBe('No label "mauve" in this study.');

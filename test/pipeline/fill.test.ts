@@ -8,7 +8,9 @@ import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { runScan, createApi } from '../../core/api/index.ts';
 import { buildModel } from '../../core/model/writer.ts';
-import { readUnit, openStudyDb, readRun, findLayer } from '../../core/store/study.ts';
+import { openStudyDb } from '../../core/store/study.ts';
+import { readBinding, findLayer } from '../../core/store/binding.ts';
+import { readUnit } from '../../core/store/activations.ts';
 import { tempDir, writeProbeSet } from '../support/fixtures.ts';
 
 describe('filled inputs', () => {
@@ -38,7 +40,7 @@ describe('filled inputs', () => {
     const r = await runScan({ model: path.join(dir, 'm.onnx'), probes, study, layers: ['out'] });
     expect(r.layers).toEqual([{ name: 'out', units: 2 * width, kind: 'dense' }]);
     const db = openStudyDb(study);
-    const run = readRun(db)!;
+    const run = readBinding(db)!;
     const layer = findLayer(db, 'out');
     expect(Array.from(readUnit(db, run, layer.id, width))).toEqual(new Array(n).fill(0.25));
     expect(readUnit(db, run, layer.id, 1)[0]).toBeCloseTo(rows[1], 6);

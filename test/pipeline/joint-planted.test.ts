@@ -10,6 +10,8 @@ import { createApi, runScan } from '../../core/api/index.ts';
 import type { RankRow } from '../../core/api/contract.ts';
 import { JOINT_CASES, writeJointPlanted } from '../support/joint-fixtures.ts';
 import { tempDir } from '../support/fixtures.ts';
+import { readAllDrivers, readLayerNulls } from '../../core/store/drivers.ts';
+import { readLayers } from '../../core/store/binding.ts';
 
 describe('planted joint-model units through onnxruntime and a study file', () => {
   let rows: RankRow[];
@@ -42,17 +44,20 @@ describe('planted joint-model units through onnxruntime and a study file', () =>
   it('stores one normalised row per driver, modulator and nested label, and the shuffled-label baseline', () => {
     const db = new Database(study, { readonly: true });
     try {
-      const kinds = db.prepare(`SELECT kind, count(*) AS n FROM unit_driver GROUP BY kind ORDER BY kind`).all();
-      const expected = { driver: JOINT_CASES.reduce((t, c) => t + c.drivers.length, 0), modulator: 1, nested: 1 };
-      expect(kinds).toEqual(Object.entries(expected).map(([kind, n]) => ({ kind, n })));
-      const conj = db.prepare(`SELECT labels, share, n_alone, n_others, n_none FROM unit_driver WHERE unit = 0 AND kind = 'driver'`).get() as Record<string, unknown>;
-      expect(JSON.parse(conj.labels as string)).toHaveLength(2); // a & b: one compound row
-      expect(conj.share).toBe(1);
-      const base = db.prepare(`SELECT units_sampled, mixed_real, mixed_expected FROM layer_null`).all() as Record<string, number>[];
-      // the scan also keeps the logits layer
-      const planted = base.find((b) => b.units_sampled === JOINT_CASES.length)!;
-      expect(planted.mixed_real).toBe(3); // the three either-or units
-      expect(planted.mixed_expected).toBe(0); // shuffled labels call nothing mixed here
+      const layer = readLayers(db).find((l) => l.name === 'planted')!;
+      const records = [...readAllDrivers(db, layer.id).values()].flat();
+      const count = (kind: string) => records.filter((r) => r.kind === kind).length;
+      expect(count('driver')).toBe(JOINT_CASES.reduce((t, c) => t + c.drivers.length, 0));
+      expect(count('modulator')).toBe(1);
+      expect(count('nested')).toBe(1);
+      const conj = readAllDrivers(db, layer.id).get(`${layer.id}:0`)!;
+      expect(conj).toHaveLength(1);
+      expect(conj[0].labels).toHaveLength(2); // a & b: one compound row
+      expect(conj[0].share).toBe(1);
+      const base = readLayerNulls(db).find((n) => n.layerId === layer.id)!;
+      expect(base.unitsSampled).toBe(JOINT_CASES.length);
+      expect(base.mixedReal).toBe(3); // the three either-or units
+      expect(base.mixedExpected).toBe(0); // shuffled labels call nothing mixed here
     } finally {
       db.close();
     }

@@ -6,8 +6,11 @@
 import { spawn, spawnSync } from 'node:child_process';
 import fs from 'node:fs';
 import path from 'node:path';
-import Database from 'better-sqlite3';
 import { beforeAll, describe, expect, it } from 'vitest';
+import { openStudyDb } from '../../core/store/study.ts';
+import { readBinding, readLayers } from '../../core/store/binding.ts';
+import { doneChunks, readChunkSample } from '../../core/store/activations.ts';
+import { readUnitScores, readLabelStats } from '../../core/store/scores.ts';
 import { tempDir, writePlanted } from '../support/fixtures.ts';
 
 const bin = path.resolve(import.meta.dirname, '../../core/cli/bin.js');
@@ -19,9 +22,9 @@ function scanArgs(model: string, probes: string, study: string): string[] {
 function chunksDone(study: string): number {
   if (!fs.existsSync(study)) return 0;
   try {
-    const db = new Database(study, { readonly: true, fileMustExist: true });
+    const db = openStudyDb(study, { readonly: true });
     try {
-      return db.prepare(`SELECT count(*) FROM chunk_done`).pluck().get() as number;
+      return readLayers(db).reduce((n, l) => n + doneChunks(db, l.id).size, 0);
     } finally {
       db.close();
     }
@@ -30,13 +33,19 @@ function chunksDone(study: string): number {
   }
 }
 
+/** Everything a scan leaves in a study, read through the store's repositories: activations, scores, label statistics. */
 function dump(study: string) {
-  const db = new Database(study, { readonly: true });
+  const db = openStudyDb(study, { readonly: true });
   try {
+    const binding = readBinding(db)!;
+    const layers = readLayers(db);
+    const name = new Map(layers.map((l) => [l.id, l.name]));
+    const chunks = Array.from({ length: Math.ceil(binding.probeCount / binding.chunkSize) }, (_, c) => c);
+    const scores = readUnitScores(db);
     return {
-      activations: db.prepare(`SELECT l.name, a.unit, a.chunk, hex(a.vals) AS v FROM activation a JOIN layer l ON l.id = a.layer_id ORDER BY 1, 2, 3`).all(),
-      scores: db.prepare(`SELECT l.name, s.unit, s.rank, s.concept_count, s.selectivity, s.flags, s.drivers, s.explanation FROM unit_score s JOIN layer l ON l.id = s.layer_id ORDER BY 1, 2`).all(),
-      labelStats: db.prepare(`SELECT * FROM unit_label ORDER BY layer_id, unit, label`).all(),
+      activations: layers.flatMap((l) => [...readChunkSample(db, l.id, chunks)].map((a) => [l.name, a.unit, a.chunk, Buffer.from(a.values.buffer).toString('hex')])),
+      scores: scores.map((s) => ({ ...s, layerId: name.get(s.layerId), topProbes: Array.from(s.topProbes), topValues: Array.from(s.topValues) })),
+      labelStats: scores.map((s) => readLabelStats(db, s.layerId, s.unit)),
     };
   } finally {
     db.close();

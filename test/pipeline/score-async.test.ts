@@ -9,12 +9,14 @@ import { describe, expect, it } from 'vitest';
 import { openStudyDb } from '../../core/store/study.ts';
 import { scoreStudy, scoreStudyAsync } from '../../core/score/job.ts';
 import { buildStudy } from '../../bench/lib/study.ts';
+import { hasScores, readUnitScores } from '../../core/store/scores.ts';
+import type { ProgressReport } from '../../core/extract/progress.ts';
 import { tempDir } from '../support/fixtures.ts';
 
 const dump = (file: string) => {
   const db = openStudyDb(file);
   try {
-    return db.prepare(`SELECT layer_id, unit, rank, concept_count, selectivity, flags, drivers, explanation FROM unit_score ORDER BY layer_id, unit`).all();
+    return readUnitScores(db).map((s) => ({ ...s, topProbes: Array.from(s.topProbes), topValues: Array.from(s.topValues) }));
   } finally {
     db.close();
   }
@@ -47,9 +49,15 @@ describe('scoring off the event loop', () => {
     buildStudy(c, { probes: 20_000, units: 300, labels: 12, seed: 3 });
     const db = openStudyDb(c);
     const abort = new AbortController();
-    setTimeout(() => abort.abort(), 30);
-    await expect(scoreStudyAsync(db, {}, { signal: abort.signal })).rejects.toMatchObject({ code: 'cancelled' });
-    expect(db.prepare(`SELECT count(*) FROM unit_score`).pluck().get()).toBe(0);
+    // Cancel on the second progress event (the first is the job's start), not after a timer: the same point every run.
+    const seen: ProgressReport[] = [];
+    const onProgress = (p: ProgressReport) => { seen.push(p); if (seen.length === 2) abort.abort(); };
+    await expect(scoreStudyAsync(db, {}, { signal: abort.signal, onProgress })).rejects.toMatchObject({ code: 'cancelled' });
+    expect(seen).toHaveLength(2);
+    expect(seen[1].done).toBeGreaterThan(0);
+    expect(seen[1].done).toBeLessThan(seen[1].total); // cancelled part-way, not after the last unit
+    expect(hasScores(db)).toBe(false);
+    expect(readUnitScores(db)).toEqual([]);
     db.close();
   });
 });

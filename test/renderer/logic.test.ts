@@ -161,7 +161,12 @@ describe('colours and theme', () => {
   it('gives the labels of one study distinct colours, in both themes', () => {
     const labels = Array.from({ length: 12 }, (_, i) => `label${i}`);
     for (const theme of ['light', 'dark'] as const) expect(new Set(labels.map((l) => labelColor(l, theme, labels))).size).toBe(12);
-    expect(labelColor('x', 'light')).toBe(labelColor('x', 'light')); // unknown labels: stable by hash
+    // A label outside the list is coloured by its hash: FNV-1a 32 of "foobar" is 0xbf9cf968 (FNV reference test
+    // vectors, from memory; checked with an independent Python implementation), 0xbf9cf968 mod 12 = 4 → the fifth
+    // palette entry of each theme (app/renderer/src/lib/colors.ts PALETTE).
+    expect(fnv1a('foobar')).toBe(0xbf9cf968);
+    expect(labelColor('foobar', 'light')).toBe('#b58a1c');
+    expect(labelColor('foobar', 'dark')).toBe('#e0bf5a');
   });
   it('follows the system until the user chooses', () => {
     expect(initialTheme(memoryStorage(), true)).toBe('dark');
@@ -194,7 +199,7 @@ describe('unit profile helpers', () => {
     expect(String(traces[1].name)).toContain('red');
   });
   it('splits a layer into kind shares summing to one', () => {
-    const s = kindShares({ name: 'l', op: 'Relu', kind: 'dense', units: 8, dead: 1, dense: 1, undriven: 2, single: 3, polysemantic: 1, meanConceptCount: 1.2, maxConceptCount: 2, histogram: [] });
+    const s = kindShares({ name: 'l', op: 'Relu', kind: 'dense', units: 8, dead: 1, dense: 1, undriven: 2, single: 3, mixed: 1, meanConceptCount: 1.2, maxConceptCount: 2, histogram: [] });
     expect(s.mixed + s.single + s.undriven + s.dead + s.dense).toBeCloseTo(1, 12);
     expect(s.single).toBe(3 / 8);
   });

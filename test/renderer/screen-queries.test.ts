@@ -1,5 +1,5 @@
 /**
- * The screens' queries (core/store/views.ts through the API) on the planted model, whose units are polysemantic or not
+ * The screens' read-models (core/api/screens/read-models.ts through the API) on the planted model, whose units are polysemantic or not
  * by construction (test/support/fixtures.ts), plus reference checks of the histogram and correlation helpers.
  */
 import fs from 'node:fs';
@@ -7,7 +7,8 @@ import path from 'node:path';
 import Database from 'better-sqlite3';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { createApi, dispatch, runScan } from '../../core/api/index.ts';
-import { binOf, pearson, sampleChunks, POLYSEMANTIC_AT } from '../../core/store/views.ts';
+import { binOf, pearson } from '../../core/score/stats.ts';
+import { sampleChunks } from '../../core/api/screens/read-models.ts';
 import { PLANTED_UNITS, tempDir, writePlanted } from '../support/fixtures.ts';
 
 const unitOf = (name: string) => PLANTED_UNITS.findIndex((u) => u.name === name);
@@ -66,8 +67,13 @@ describe('screen requests on the planted study', () => {
       expect(labels).toEqual(r.drivers.map((d) => d.label));
       expect(t.flags[i]).toBe((r.flags.includes('dead') ? 1 : 0) | (r.flags.includes('dense') ? 2 : 0));
     });
-    expect(t.thresholds.polysemanticAt).toBe(POLYSEMANTIC_AT);
+    // Stored with the other score options; 1.5 is the default (half-way between one and two concepts, core/score/unit.ts).
+    expect(t.thresholds.polysemanticAt).toBe(1.5);
     expect(t.thresholds.maxQ).toBe(0.05);
+    // Kinds are classified in core and sent: planted by construction (red+orange's count lies between 1 and 2, so either).
+    const kindOf = (name: string) => t.kinds[t.kind[t.unit.indexOf(unitOf(name))]];
+    expect(['dead', 'dense', 'mono-red', 'mono-star', 'blue+square', 'red+circle+top'].map(kindOf)).toEqual(['dead', 'dense', 'single', 'single', 'mixed', 'mixed']);
+    expect(['mixed', 'single']).toContain(kindOf('red+orange'));
   });
 
   it('unit.distributions counts every probe once overall and once per label', async () => {
@@ -114,15 +120,16 @@ describe('screen requests on the planted study', () => {
     await expect(api['concept.units']({ study, label: 'nope' })).rejects.toMatchObject({ code: 'request', where: 'label' });
   });
 
-  it('layers.overview counts the planted kinds', async () => {
-    const o = await api['layers.overview']({ study });
+  it('layers.strata counts the planted kinds', async () => {
+    const o = await api['layers.strata']({ study });
     const l = o.layers[0];
     expect(l.units).toBe(7);
     expect(l.dead).toBe(1);
     expect(l.dense).toBe(1);
     // red+circle+top (≈3) and blue+square (≈2) are at or above 1.5; mono units are exactly 1 (construction).
-    expect(l.polysemantic).toBeGreaterThanOrEqual(2);
-    expect(l.polysemantic + l.single + l.undriven + l.dead + l.dense).toBe(7);
+    expect(l.mixed).toBeGreaterThanOrEqual(2);
+    expect(l.undriven).toBe(0); // every live planted unit has a driver (construction)
+    expect(l.mixed + l.single + l.undriven + l.dead + l.dense).toBe(7);
     expect(l.histogram.reduce((a, b) => a + b, 0)).toBe(7);
   });
 

@@ -5,6 +5,7 @@ import {
   FLAG_DEAD, FLAG_DENSE, type UnitTable,
 } from '../../app/renderer/src/lib/table.ts';
 import { labelReachCounts } from '../../app/renderer/src/lib/reach.ts';
+import { UNIT_KINDS, classifyUnit } from '../../core/score/kind.ts';
 
 /** Six units over two layers; drivers by hand (invented for the test). */
 function table(): UnitTable {
@@ -21,12 +22,14 @@ function table(): UnitTable {
   const t: UnitTable = {
     layers: [{ name: 'block1.relu', kind: 'conv', units: 8, dims: [8, 4, 4] }, { name: 'head.relu', kind: 'dense', units: 10, dims: [10] }],
     labels: ['red', 'blue', 'circle', 'star'],
-    count: rows.length, layer: [], unit: [], rank: [], conceptCount: [], selectivity: [], flags: [],
+    count: rows.length, layer: [], unit: [], rank: [], conceptCount: [], selectivity: [], flags: [], kind: [], kinds: [...UNIT_KINDS],
     driverOffsets: [0], driverLabel: [], driverShare: [],
     thresholds: { maxQ: 0.05, minAuroc: 0.75, topQuantile: 0.005, deadFraction: 0.005, denseFraction: 0.5, polysemanticAt: 1.5 },
   };
   rows.forEach(([l, u, cc, sel, f, ds], i) => {
     t.layer.push(l); t.unit.push(u); t.rank.push(i); t.conceptCount.push(cc); t.selectivity.push(sel); t.flags.push(f);
+    // The kind column as core sends it (core/score/kind.ts, tested in test/score/kind.test.ts).
+    t.kind.push(UNIT_KINDS.indexOf(classifyUnit({ dead: Boolean(f & FLAG_DEAD), dense: Boolean(f & FLAG_DENSE), conceptCount: cc ?? 0 }, 1.5)));
     for (const [label, share] of ds) { t.driverLabel.push(label); t.driverShare.push(share); }
     t.driverOffsets.push(t.driverLabel.length);
   });
@@ -36,7 +39,7 @@ function table(): UnitTable {
 const units = (t: UnitTable, rows: Int32Array) => Array.from(rows, (i) => `${t.layers[t.layer[i]].name}:${t.unit[i]}`);
 
 describe('kinds and drivers', () => {
-  it('classifies each unit once: flags first, then the concept count against the threshold', () => {
+  it('shows the kind core sent for each row and counts them', () => {
     const t = table();
     expect(Array.from({ length: t.count }, (_, i) => kindOf(t, i))).toEqual(['mixed', 'mixed', 'single', 'single', 'undriven', 'dead', 'dense']);
     expect(countKinds(t)).toEqual({ mixed: 2, single: 2, undriven: 1, dead: 1, dense: 1 });
@@ -119,11 +122,12 @@ describe('sortRows', () => {
     const n = 100_000;
     const big = table();
     big.count = n;
-    big.layer = []; big.unit = []; big.rank = []; big.conceptCount = []; big.selectivity = []; big.flags = [];
+    big.layer = []; big.unit = []; big.rank = []; big.conceptCount = []; big.selectivity = []; big.flags = []; big.kind = [];
     big.driverOffsets = [0]; big.driverLabel = []; big.driverShare = [];
     for (let i = 0; i < n; i++) {
       big.layer.push(i % 2); big.unit.push(i >> 1); big.rank.push(i); big.conceptCount.push((i * 7919) % 300 / 100);
       big.selectivity.push(i % 11 === 0 ? null : ((i * 31) % 100) / 100); big.flags.push(i % 97 === 0 ? FLAG_DEAD : 0);
+      big.kind.push(UNIT_KINDS.indexOf(classifyUnit({ dead: i % 97 === 0, dense: false, conceptCount: big.conceptCount[i]! }, 1.5)));
       if (i % 3) { big.driverLabel.push(i % 4); big.driverShare.push(1); }
       big.driverOffsets.push(big.driverLabel.length);
     }

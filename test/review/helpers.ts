@@ -4,7 +4,8 @@ import path from 'node:path';
 import Database from 'better-sqlite3';
 import pngjs from 'pngjs';
 import { runScan } from '../../core/api/index.ts';
-import { openStudyDb, now } from '../../core/store/study.ts';
+import { openStudyDb } from '../../core/store/study.ts';
+import { bindStudy, insertLayer } from '../../core/store/binding.ts';
 import { FORMS, HUES, PLACES, plantedProbes, tempDir, writePlanted } from '../support/fixtures.ts';
 
 const HUE_RGB: Record<string, [number, number, number]> = {
@@ -83,11 +84,9 @@ export function copyStudy(from: string, to: string): string {
 export function bareStudy(file: string, layers: { name: string; units: number }[], fps = { model: 'model-fp-1', probes: 'probes-fp-1' }): string {
   const db = openStudyDb(file, { create: true });
   try {
-    const t = now();
-    db.prepare(`INSERT INTO run (id, model_path, model_fp, model_json, probes_dir, probes_fp, probes_name, probe_count, chunk_size, created_at, updated_at)
-                VALUES (1, 'm.onnx', ?, '{}', 'probes', ?, 'probes', 1, 1, ?, ?)`).run(fps.model, fps.probes, t, t);
-    layers.forEach((l, i) => db.prepare(`INSERT INTO layer (name, op, node, position, dims_json, kind, units, pool) VALUES (?, 'Relu', ?, ?, ?, 'dense', ?, 'none')`)
-      .run(l.name, `n-${l.name}`, i, JSON.stringify([l.units]), l.units));
+    bindStudy(db, { path: 'm.onnx', fingerprint: fps.model, json: '{}' },
+      { dir: 'probes', fingerprint: fps.probes, name: 'probes', count: 1, labels: [], labelOffsets: new Int32Array(2), labelIds: new Int32Array(0), concepts: null, examples: null, relatedness: null }, 1);
+    layers.forEach((l, i) => insertLayer(db, { name: l.name, op: 'Relu', node: `n-${l.name}`, position: i, dims: [l.units], kind: 'dense', units: l.units, pool: 'none' }));
   } finally {
     db.close();
   }

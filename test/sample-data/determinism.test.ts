@@ -52,8 +52,8 @@ describe('tiles demo build', () => {
     const b = readTree(second);
     expect([...a.keys()]).toEqual([...b.keys()]);
     for (const [file, bytes] of a) expect(bytes.equals(b.get(file)!), file).toBe(true);
-    // manifest, four data files, one preview per probe, and the model; nothing half-written left behind
-    expect(a.size).toBe(5 + SMALL.probeCount + 1);
+    // manifest, five data files (tiles, labels, targets, concepts, examples), one preview per probe, and the model
+    expect(a.size).toBe(6 + SMALL.probeCount + 1);
     expect([...a.keys()].some((f) => f.includes('.partial'))).toBe(false);
     expect(committedStamp()).toBe(before);
   });

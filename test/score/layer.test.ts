@@ -75,6 +75,17 @@ describe('finishLayer', () => {
     expect(scores[10].drivers.map((d) => d.label)).toEqual([2]); // strongest planted unit: "east"
   });
 
+  it('finds the planted driver and nothing else (known answer by construction)', () => {
+    // Unit u fires by u/5 on probes of names[u % 4] plus noise in [−0.5, 0.5): no other label moves it, so no other label
+    // may be a driver (precision). From u = 5 on, the target's values lie in [0.5, 1.5 + …) and every other probe's in
+    // [0, 0.5): the classes separate completely (AUROC 1) on 1200 probes, so the target must be found (recall).
+    for (let u = 0; u < 11; u++) {
+      const labels = scores[u].drivers.map((d) => d.label);
+      for (const l of labels) expect(l, `unit ${u}`).toBe(u % 4);
+      if (u >= 5) expect(labels, `unit ${u}`).toEqual([u % 4]);
+    }
+  });
+
   it('refuses a relatedness table of another label set', () => {
     const other = labelMatrixOf(['a', 'b'], [['a'], ['b']]);
     const attempt = () => finishLayer(partials, buildRelatedness(['a', 'b'], other, null, null, { wordnet: false }), defaultScoreOptions);

@@ -3,32 +3,17 @@
  * drivers, and with none of them (count, mean activation, effect), example probes of each driver on its own, and why
  * the unit ranks where it does. Computed from the cached activations and label sets given the unit's driver list.
  */
-import { z } from 'zod';
+import type { z } from 'zod';
+import type { screenRequests } from '../requests/screens.ts';
 import type Database from 'better-sqlite3';
 import { SkeinError } from '../../errors.ts';
-import { readRun, findLayer, readUnit, readUnitArgmax, type RunRow } from '../../store/study.ts';
-import { unitDetail, labelNames } from '../../store/queries.ts';
-import { probeLabels } from '../../store/views.ts';
+import { readBinding, findLayer, labelNames, type StudyBinding } from '../../store/binding.ts';
+import { readUnit, readUnitArgmax } from '../../store/activations.ts';
+import { unitDetail, probeLabels } from './read-models.ts';
 import { probesOfLabel, probeDisplays, rankNeighbours, type RankNeighbour } from '../../store/evidence.ts';
 import { driverPresence, responseTable, type ResponseGroup } from '../../score/response.ts';
 
-const path = z.string().min(1).max(4096);
-const layerName = z.string().min(1).max(1024);
-const labelName = z.string().min(1).max(1024);
-
-export const evidenceRequests = {
-  /**
-   * The evidence for one unit's drivers. `drivers` (optional) replaces the stored driver list with the caller's own,
-   * each a list of 1–3 labels that must all be present (a compound); default: the unit's stored drivers.
-   */
-  'unit.evidence': z.strictObject({
-    study: path, layer: layerName, unit: z.number().int().min(0),
-    drivers: z.array(z.array(labelName).min(1).max(3)).max(12).optional(),
-    examples: z.number().int().min(1).max(24).optional(),
-  }),
-} satisfies Record<string, z.ZodType>;
-
-export type EvidenceRequest = z.infer<(typeof evidenceRequests)['unit.evidence']>;
+export type EvidenceRequest = z.infer<(typeof screenRequests)['unit.evidence']>;
 
 export interface EvidenceExample {
   probe: number; value: number;
@@ -94,7 +79,7 @@ function partsOf(d: { label: string; labels?: string[] }): string[] {
 
 export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, 'study'>, file?: string): UnitEvidence {
   const detail = unitDetail(db, req.layer, req.unit, file);
-  const run = readRun(db) as RunRow;
+  const run = readBinding(db) as StudyBinding;
   const layer = findLayer(db, req.layer, file);
   const names = labelNames(db);
   const idOf = new Map(names.map((n, i) => [n, i]));

@@ -1,5 +1,5 @@
 /** Pure helpers of the unit page's evidence panel: why a unit ranks where it does, and signed effects. */
-import type { RankingReason } from '../../../../core/api/screens.ts';
+import type { RankingReason } from '../../../../core/api/screens/index.ts';
 import { count, fixed, unitName } from './format.ts';
 
 /** A signed difference: "+1.02", "−0.31" (a true minus sign), "—" when missing. */

@@ -1,5 +1,5 @@
 /** Pure helpers of the unit profile: where a conv unit peaked on its image, and the histogram traces. */
-import type { UnitDistributions } from '../../../../core/api/screens.ts';
+import type { UnitDistributions } from '../../../../core/api/contract.ts';
 
 export interface SpatialBox { left: number; top: number; width: number; height: number; row: number; col: number; rows: number; cols: number }
 

@@ -3,7 +3,7 @@
  * deep reactive proxies) and the unit table's filter, sort and cursor, which survive moving between screens.
  */
 import { call, asErrorInfo, type Response, type ErrorInfo } from './api.ts';
-import { emptyFilter, defaultSort, allRows, filterRows, sortRows, type RosterFilter, type RosterSort, type UnitTable } from './table.ts';
+import { emptyFilter, defaultSort, allRows, filterRows, sortRows, hurtColumn, type RosterFilter, type RosterSort, type UnitTable } from './table.ts';
 
 export class StudySession {
   readonly path: string;
@@ -19,8 +19,10 @@ export class StudySession {
   cursor = $state(0);
   scrollTop = 0;
 
+  /** Per row, unrelated concepts hurt when the unit is removed (NaN: not measured); null until asked. */
+  hurt = $state.raw<Float64Array | null>(null);
   /** Every row in the chosen order (re-sorted only when the sort changes). */
-  sorted = $derived.by(() => (this.table ? sortRows(this.table, allRows(this.table), $state.snapshot(this.sort)) : new Int32Array(0)));
+  sorted = $derived.by(() => (this.table ? sortRows(this.table, allRows(this.table), $state.snapshot(this.sort), this.hurt) : new Int32Array(0)));
   /** Visible rows: indices into the table's columns, filtered from the sorted order. */
   rows = $derived.by(() => (this.table ? filterRows(this.table, $state.snapshot(this.filter), this.sorted) : new Int32Array(0)));
 
@@ -37,6 +39,17 @@ export class StudySession {
     this.path = path;
   }
 
+  /** Reads the stored removal costs for the roster's "hurt" column (cheap; called when the roster opens). */
+  async loadHurt(): Promise<void> {
+    const t = this.table;
+    if (!t) return;
+    try {
+      this.hurt = hurtColumn(t, await call('ablate.roster', { study: this.path }));
+    } catch {
+      this.hurt = null; // the column then reads "—"; the roster itself still works
+    }
+  }
+
   /** Loads (or reloads, after a scan) the summary and, when scored, the unit table. */
   async load(): Promise<void> {
     this.loading = true;
@@ -44,6 +57,7 @@ export class StudySession {
     try {
       this.summary = await call('study.summary', { study: this.path });
       this.table = this.summary.scored ? await call('units.table', { study: this.path }) : null;
+      await this.loadHurt();
     } catch (e) {
       this.error = asErrorInfo(e);
     } finally {

@@ -2,16 +2,16 @@
  * The unit table's filter and sort, as plain functions over the column arrays of 'units.table'
  * (no per-row objects: 10^5 rows filter and sort in a few milliseconds).
  */
-import type { UnitTable } from '../../../../core/api/screens.ts';
+import type { UnitTable, UnitKind as CoreUnitKind } from '../../../../core/api/contract.ts';
 
 export type { UnitTable };
 
-/** Bits of UnitTable.flags (core/store/views.ts FLAG_DEAD, FLAG_DENSE). */
+/** Bits of UnitTable.flags (core/api/screens/read-models.ts FLAG_DEAD, FLAG_DENSE). */
 export const FLAG_DEAD = 1;
 export const FLAG_DENSE = 2;
 
-/** Which kind of unit to keep. 'mixed': concept count at or above the polysemantic threshold. */
-export type UnitKind = 'any' | 'mixed' | 'single' | 'undriven' | 'dead' | 'dense';
+/** Which kind of unit to keep (kinds are classified in core/score/kind.ts and sent in the table), or any. */
+export type UnitKind = 'any' | CoreUnitKind;
 
 export interface RosterFilter {
   /** Free text: whitespace-separated terms, all must match (layer name, unit number or a driver label). */
@@ -25,7 +25,7 @@ export interface RosterFilter {
 
 export const emptyFilter = (): RosterFilter => ({ text: '', layers: [], kind: 'any', driver: null });
 
-export type SortKey = 'rank' | 'layer' | 'unit' | 'concepts' | 'drivers' | 'selectivity' | 'flags' | 'review';
+export type SortKey = 'rank' | 'layer' | 'unit' | 'concepts' | 'hurt' | 'drivers' | 'selectivity' | 'flags' | 'review';
 export type SortDir = 1 | -1;
 export interface RosterSort { key: SortKey; dir: SortDir }
 
@@ -34,17 +34,12 @@ export const defaultSort = (): RosterSort => ({ key: 'rank', dir: 1 });
 
 /** Direction a column sorts in when first clicked: big numbers first for scores, natural order otherwise. */
 export function firstDirection(key: SortKey): SortDir {
-  return key === 'concepts' || key === 'selectivity' || key === 'flags' ? -1 : 1;
+  return key === 'concepts' || key === 'hurt' || key === 'selectivity' || key === 'flags' ? -1 : 1;
 }
 
-export function kindOf(t: UnitTable, i: number): Exclude<UnitKind, 'any'> {
-  const f = t.flags[i];
-  if (f & FLAG_DEAD) return 'dead';
-  if (f & FLAG_DENSE) return 'dense';
-  const cc = t.conceptCount[i] ?? 0;
-  if (cc >= t.thresholds.polysemanticAt) return 'mixed';
-  if (cc > 0) return 'single';
-  return 'undriven';
+/** The kind core classified this row as (never recomputed here). */
+export function kindOf(t: UnitTable, i: number): CoreUnitKind {
+  return t.kinds[t.kind[i]];
 }
 
 export function driversOf(t: UnitTable, i: number): { label: number; name: string; share: number }[] {
@@ -105,8 +100,8 @@ export function filterRows(t: UnitTable, f: RosterFilter, order: Int32Array = al
   return out.slice(0, n);
 }
 
-/** One numeric sort key per row; NaN for "no value" (always sorted last). */
-function sortKeys(t: UnitTable, key: SortKey): Float64Array {
+/** One numeric sort key per row; NaN for "no value" (always sorted last). `hurt`: concepts hurt per row (removal costs). */
+function sortKeys(t: UnitTable, key: SortKey, hurt?: Float64Array | null): Float64Array {
   const k = new Float64Array(t.count);
   switch (key) {
     case 'rank': for (let i = 0; i < t.count; i++) k[i] = t.rank[i]; break;
@@ -115,6 +110,7 @@ function sortKeys(t: UnitTable, key: SortKey): Float64Array {
     case 'concepts': for (let i = 0; i < t.count; i++) k[i] = t.conceptCount[i] ?? NaN; break;
     case 'selectivity': for (let i = 0; i < t.count; i++) k[i] = t.selectivity[i] ?? NaN; break;
     case 'flags': for (let i = 0; i < t.count; i++) k[i] = t.flags[i]; break;
+    case 'hurt': if (hurt) k.set(hurt); else k.fill(NaN); break;
     case 'drivers': {
       // Groups units by their largest driver's name (alphabetical), then by that driver's share.
       const order = t.labels.map((_, i) => i).sort((a, b) => t.labels[a].localeCompare(t.labels[b]));
@@ -132,8 +128,8 @@ function sortKeys(t: UnitTable, key: SortKey): Float64Array {
 }
 
 /** A sorted copy of `rows`; ties (and rows without a value) keep rank order. */
-export function sortRows(t: UnitTable, rows: Int32Array, sort: RosterSort): Int32Array {
-  const keys = sortKeys(t, sort.key);
+export function sortRows(t: UnitTable, rows: Int32Array, sort: RosterSort, hurt?: Float64Array | null): Int32Array {
+  const keys = sortKeys(t, sort.key, hurt);
   const out = rows.slice();
   out.sort((a, b) => {
     const ka = keys[a];
@@ -164,4 +160,18 @@ export function findRow(t: UnitTable, layer: string, unit: number): number {
   const li = t.layers.findIndex((l) => l.name === layer);
   for (let i = 0; i < t.count; i++) if (t.layer[i] === li && t.unit[i] === unit) return i;
   return -1;
+}
+
+/**
+ * Per table row, the unrelated concepts the model gets worse at when the unit is removed (from 'ablate.roster');
+ * NaN where the unit has not been ablated.
+ */
+export function hurtColumn(t: UnitTable, costs: { layer: string; units: number[]; conceptsHurt: number[] }[]): Float64Array {
+  const out = new Float64Array(t.count).fill(NaN);
+  const byLayer = new Map(costs.map((c) => [c.layer, new Map(c.units.map((u, k) => [u, c.conceptsHurt[k]]))]));
+  for (let i = 0; i < t.count; i++) {
+    const v = byLayer.get(t.layers[t.layer[i]].name)?.get(t.unit[i]);
+    if (v !== undefined) out[i] = v;
+  }
+  return out;
 }
