@@ -1,5 +1,5 @@
 /**
- * npm run bench [-- --quick] [-- --only scan,storage,scoring,memory,scale,ui]
+ * npm run bench [-- --quick] [-- --only scan,storage,scoring,memory,scale,ui,ablation,lens]
  *
  * Every figure is measured side by side in this one run (a ratio of two things measured on the same machine, at the
  * same time, interleaved, medians over repeats), never in a timed test. Prints, per figure, what was run, the sizes,
@@ -20,9 +20,10 @@ import { agreementAtScale, scoringFigure, type ScoringFigure } from './figures/s
 import { scaleAxis, scoreJobPoint, type AxisResult, type JobPoint } from './figures/memory.ts';
 import { uiFigure, type UiFigure } from './figures/ui.ts';
 import { ablationFigure } from './figures/ablation.ts';
+import { lensFigure } from './figures/lens.ts';
 import type { SyntheticSpec } from './lib/synthetic.ts';
 
-const FIGURES = ['scan', 'storage', 'scoring', 'memory', 'scale', 'ui', 'ablation'] as const;
+const FIGURES = ['scan', 'storage', 'scoring', 'memory', 'scale', 'ui', 'ablation', 'lens'] as const;
 type FigureName = (typeof FIGURES)[number];
 
 interface Sizes {
@@ -45,6 +46,7 @@ interface Sizes {
   uiProbes: number;
   uiReps: number;
   ablation: { probes: number; reps: number; cnn: [number, number, number, number] };
+  lens: SyntheticSpec;
 }
 
 const FULL: Sizes = {
@@ -56,6 +58,7 @@ const FULL: Sizes = {
   scale: { probes: [20_000, 60_000, 200_000], units: [1024, 2048, 4096], labels: [10, 30, 100] },
   uiUnits: 100_000, uiProbes: 1024, uiReps: 5,
   ablation: { probes: 2048, reps: 5, cnn: [28, 16, 32, 64] },
+  lens: { probes: 20_000, units: 4096, labels: 4, seed: 5 },
 };
 
 const QUICK: Sizes = {
@@ -67,6 +70,7 @@ const QUICK: Sizes = {
   scale: { probes: [2000, 4000, 8000], units: [128, 256, 512], labels: [10, 20, 40] },
   uiUnits: 2000, uiProbes: 256, uiReps: 2,
   ablation: { probes: 1024, reps: 1, cnn: [28, 8, 16, 32] },
+  lens: { probes: 2000, units: 128, labels: 4, seed: 5 },
 };
 
 export interface ResultEntry {
@@ -323,6 +327,30 @@ async function main(): Promise<void> {
       const perUnit = (u2.seconds - u0.seconds) / (u2.units - u0.units);
       say(`growth with units (r3): ${a.unitsGrowth.map((g) => `${g.units}: ${g.seconds.toFixed(2)} s`).join(', ')} → ${(perUnit * 1000).toFixed(2)} ms per extra unit, ${(u0.seconds - perUnit * u0.units).toFixed(2)} s fixed`);
       md.push('', `A line through the ends: ${(perUnit * 1000).toFixed(2)} ms per extra unit plus ${(u0.seconds - perUnit * u0.units).toFixed(2)} s fixed (the upstream pass and the baseline).`, '');
+    }
+  }
+
+  if (only.has('lens')) {
+    const sp = sizes.lens;
+    say('\n== Lens (the superposition lens of one layer vs the numpy/sklearn notebook) ==');
+    say(`command: computeLens (core/geometry) in a child process vs bench/lens_reference.py (np.cov + eigvalsh, LogisticRegression per label and fold, the same sparse probes), ${sp.probes} × ${sp.units} × ${sp.labels}`);
+    const f = await lensFigure(path.join(outDir, 'lens'), sp, log);
+    say(`lens ${f2(f.lensSeconds)} s, numpy/sklearn ${f2(f.referenceSeconds)} s → ${f2(f.ratio)}× (target ≥ 1: ${verdict(f.ratio >= 1)}); peak RSS ${f.peakRssMb.toFixed(0)} MiB; participation ratio agrees to ${f.prDifference.toExponential(1)}, AUROC to ${f.largestAurocDifference.toExponential(1)}`);
+    md.push('### Lens', '', `${sp.probes} probes × ${sp.units} units × ${sp.labels} labels, probes fitted on ${f.probesFitted}.`, '', '| what | wall s | CPU s |', '|---|---|---|',
+      `| lens (core/geometry, reads the study) | ${f2(f.lensSeconds)} | ${f2(f.lensCpuSeconds)} |`, `| numpy/sklearn notebook (arrays in memory) | ${f2(f.referenceSeconds)} | ${f2(f.referenceCpuSeconds)} |`, '',
+      `Notebook / lens: **${f2(f.ratio)}×** (target ≥ 1 ${verdict(f.ratio >= 1)}). Lens peak RSS ${f.peakRssMb.toFixed(0)} MiB.`, '');
+    const lensResults: ResultEntry[] = [
+      { name: 'lens_vs_numpy_sklearn', value: f.ratio, unit: 'ratio', target: '>= 1', note: `notebook seconds / lens seconds, ${sp.probes} × ${sp.units} × ${sp.labels}, wall` },
+      { name: 'lens_seconds', value: f.lensSeconds, unit: 's', target: null, note: 'computeLens end to end, reading the study' },
+      { name: 'lens_reference_seconds', value: f.referenceSeconds, unit: 's', target: null, note: 'bench/lens_reference.py, loading excluded' },
+      { name: 'lens_peak_rss_mb', value: f.peakRssMb, unit: 'MiB', target: null, note: 'child process running computeLens' },
+    ];
+    results.push(...lensResults);
+    // A lens-only run still records its figures under their stable names in bench/results.json.
+    if (!quick && only.size < FIGURES.length) {
+      const file = path.join(benchDir, 'results.json');
+      const kept = (JSON.parse(fs.readFileSync(file, 'utf8')) as ResultEntry[]).filter((e) => !e.name.startsWith('lens_'));
+      fs.writeFileSync(file, JSON.stringify([...kept, ...lensResults], null, 1) + '\n');
     }
   }
 
