@@ -4,6 +4,7 @@ import type Database from 'better-sqlite3';
 import * as ort from 'onnxruntime-node';
 import { SkeinError } from '../errors.ts';
 import { readModel, exposeTensors, createSession, unitLayout, batchPolicy, dryRunShapes } from '../model/index.ts';
+import { canPoolInGraph, exposePooled, type PooledOutputs } from '../model/pool-graph.ts';
 import type { ModelInfo, ValueInfo } from '../model/types.ts';
 import { openProbeSet, resolveFillShapes, float16BitsToNumber } from '../probes/index.ts';
 import type { ProbeSet } from '../probes/types.ts';
@@ -57,26 +58,44 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
   for (const w of probes.warnings) note(w);
   const selected = selectLayers(info, req.layers);
 
-  const db = openStudyDb(req.study, { create: true, nativeBinding: hooks.nativeBinding });
+  // Validate everything (the model loads and runs on one probe, the probe set opens) before the study is touched:
+  // a model onnxruntime refuses must not discard what the study already holds.
+  const modelBytes = fs.readFileSync(info.path);
+  let session = await createSession(exposeTensors(modelBytes, selected.map((t) => t.name), { modelPath: info.path }), { intraOpThreads: req.threads }, info.path);
+  const studyPath = path.resolve(req.study);
+  const isNew = !fs.existsSync(studyPath);
+  let db: Database.Database | null = null;
+  let chunksWritten = 0;
   try {
-    const chunkSize = bindToStudy(db, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
+    const fixed = fixedBatch(info.inputs.filter((i) => probes.inputs.some((s) => s.name === i.name) || i.name in probes.fill));
+    const batch = fixed ?? Math.max(1, Math.floor(req.batch ?? DEFAULT_BATCH));
+    if (fixed !== null && req.batch !== undefined && req.batch !== fixed) {
+      note(`The model's batch dimension is fixed at ${fixed}; using batch ${fixed} instead of ${req.batch}.`);
+    }
+    const feeder = new Feeder(info, probes, fillShapes, fixed);
+    const dims = await dryRunShapes(info, session, feeder.feeds(0, 1));
+    const shapes = new Map(selected.map((t) => [t.name, dims[t.name].slice(1)]));
 
-    const bytes = exposeTensors(fs.readFileSync(info.path), selected.map((t) => t.name), { modelPath: info.path });
-    const session = await createSession(bytes, { intraOpThreads: req.threads }, info.path);
-    try {
-      const fixed = fixedBatch(info.inputs.filter((i) => probes.inputs.some((s) => s.name === i.name) || i.name in probes.fill));
-      const batch = fixed ?? Math.max(1, Math.floor(req.batch ?? DEFAULT_BATCH));
-      if (fixed !== null && req.batch !== undefined && req.batch !== fixed) {
-        note(`The model's batch dimension is fixed at ${fixed}; using batch ${fixed} instead of ${req.batch}.`);
-      }
-      const feeder = new Feeder(info, probes, fillShapes, fixed);
-      const dims = await dryRunShapes(info, session, feeder.feeds(0, 1));
-      const shapes = new Map(selected.map((t) => [t.name, dims[t.name].slice(1)]));
-      const layers = upsertLayers(db, selected, shapes, req.pool ?? 'max', note);
-
+    const opened = openStudyDb(req.study, { create: true, nativeBinding: hooks.nativeBinding });
+    db = opened;
+    // Stale data is discarded in the transaction that binds the study to the new scan and records its layers.
+    const { chunkSize, layers } = opened.transaction(() => {
+      const size = bindToStudy(opened, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
+      return { chunkSize: size, layers: upsertLayers(opened, selected, shapes, req.pool ?? 'max', note) };
+    })();
+    // Pool inside the graph (core/model/pool-graph.ts): onnxruntime returns per-unit values, not whole maps.
+    let pooledOutputs: Map<string, PooledOutputs> | null = null;
+    if (canPoolInGraph(info.opsetVersion)) {
+      const plans = layers.map((l) => ({ name: l.name, kind: l.kind, dims: l.dims, pool: (l.pool === 'none' ? 'max' : l.pool) as Pool }));
+      const pooled = exposePooled(modelBytes, plans, { modelPath: info.path });
+      await session.release();
+      session = await createSession(pooled.bytes, { intraOpThreads: req.threads }, info.path);
+      pooledOutputs = pooled.outputs;
+    }
+    {
       const chunks = Math.ceil(probes.count / chunkSize);
       const pending: { chunk: number; layers: LayerRow[] }[] = [];
-      const done = new Map(layers.map((l) => [l.id, doneChunks(db, l.id)]));
+      const done = new Map(layers.map((l) => [l.id, doneChunks(opened, l.id)]));
       let reused = 0;
       for (let c = 0; c < chunks; c++) {
         const missing = layers.filter((l) => !done.get(l.id)!.has(c));
@@ -102,18 +121,34 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
         for (let off = 0; off < length; off += batch) {
           throwIfAborted(hooks.signal);
           const count = Math.min(batch, length - off);
-          const out = await session.run(feeder.feeds(start + off, count), todo.map((l) => l.name));
-          for (const buf of buffers) {
-            const t = out[buf.layer.name];
-            const pooled = poolBatch(asFloats(t), count, buf.layer.kind, buf.layer.dims, buf.layer.pool as Pool);
-            scatter(pooled.values, buf.values, buf.layer.units, count, length, off);
-            if (buf.argmax && pooled.argmax) scatter(pooled.argmax, buf.argmax, buf.layer.units, count, length, off);
+          if (pooledOutputs) {
+            const fetch = todo.flatMap((l) => { const o = pooledOutputs!.get(l.name)!; return o.argmax ? [o.values, o.argmax] : [o.values]; });
+            const out = await session.run(feeder.feeds(start + off, count), fetch);
+            for (const buf of buffers) {
+              const o = pooledOutputs.get(buf.layer.name)!;
+              scatter(out[o.values].data as Float32Array, buf.values, buf.layer.units, count, length, off);
+              if (buf.argmax && o.argmax) {
+                const at = out[o.argmax].data as Int32Array;
+                scatter(new Uint32Array(at.buffer, at.byteOffset, at.length), buf.argmax, buf.layer.units, count, length, off);
+              } else if (buf.argmax && o.constantArgmax !== null) {
+                for (let u = 0; u < buf.layer.units; u++) buf.argmax.fill(o.constantArgmax, u * length + off, u * length + off + count);
+              }
+            }
+          } else {
+            const out = await session.run(feeder.feeds(start + off, count), todo.map((l) => l.name));
+            for (const buf of buffers) {
+              const t = out[buf.layer.name];
+              const pooled = poolBatch(asFloats(t), count, buf.layer.kind, buf.layer.dims, buf.layer.pool as Pool);
+              scatter(pooled.values, buf.values, buf.layer.units, count, length, off);
+              if (buf.argmax && pooled.argmax) scatter(pooled.argmax, buf.argmax, buf.layer.units, count, length, off);
+            }
           }
           progress.advance(count);
         }
         throwIfAborted(hooks.signal);
         // One transaction per chunk: a kill leaves whole chunks only, so resume never mixes partial work in.
-        writeChunk(db, chunk, length, buffers.map((b) => ({ layerId: b.layer.id, units: b.layer.units, values: b.values, argmax: b.argmax })));
+        writeChunk(opened, chunk, length, buffers.map((b) => ({ layerId: b.layer.id, units: b.layer.units, values: b.values, argmax: b.argmax })));
+        chunksWritten++;
       }
       progress.finish();
       return {
@@ -125,11 +160,18 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
         resumed,
         seconds: (Date.now() - started) / 1000,
       };
-    } finally {
-      await session.release();
     }
+  } catch (e) {
+    // A scan that fails before its first chunk leaves no new study file behind.
+    if (isNew && chunksWritten === 0) {
+      db?.close();
+      db = null;
+      for (const f of [studyPath, `${studyPath}-wal`, `${studyPath}-shm`, `${studyPath}-journal`]) fs.rmSync(f, { force: true });
+    }
+    throw e;
   } finally {
-    db.close();
+    db?.close();
+    await session.release();
   }
 }
 
