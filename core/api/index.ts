@@ -10,6 +10,7 @@ import { openStudyDb, withStudyDb } from '../store/study.ts';
 import { requireBinding, readLayers, findLayer, labelNames } from '../store/binding.ts';
 import { readLayerChunk } from '../store/activations.ts';
 import { hasScores } from '../store/scores.ts';
+import { lockStudy, withStudyLock } from '../store/lock.ts';
 import { writeFileDurably } from '../fs/index.ts';
 import { rankRows, unitDetail } from './screens/read-models.ts';
 import { createScreenApi } from './screens/index.ts';
@@ -41,8 +42,12 @@ export function toErrorInfo(e: unknown): ErrorInfo {
   return { code: 'io', message: `Unexpected failure: ${(e as Error)?.message ?? String(e)}. Please report it with the steps that led here.` };
 }
 
-/** Runs extraction then scoring. Used directly by the CLI and through jobs by the screens. */
+/** Runs extraction then scoring, holding the study's writer lock. Used directly by the CLI and through jobs by the screens. */
 export async function runScan(req: Request<'scan.start'>, hooks: ScanHooks = {}, ctx: ApiContext = {}): Promise<ScanResult> {
+  return withStudyLock(req.study, 'scan', () => scanLocked(req, hooks, ctx));
+}
+
+async function scanLocked(req: Request<'scan.start'>, hooks: ScanHooks, ctx: ApiContext): Promise<ScanResult> {
   const ex = await extract(req, { ...hooks, nativeBinding: ctx.nativeBinding });
   const db = openStudyDb(req.study, { nativeBinding: ctx.nativeBinding });
   try {
@@ -77,11 +82,14 @@ export function createApi(ctx: ApiContext = {}) {
     },
 
     'scan.start': async (r: Request<'scan.start'>): Promise<{ job: string }> => {
+      // One writer per study: a second scan is refused here, naming the running job.
+      const lock = lockStudy(r.study, 'scan');
       const id = crypto.randomUUID();
       const abort = new AbortController();
       const state: JobState = { job: id, state: 'running', progress: null, notes: [], error: null, result: null };
       jobs.set(id, { state, abort });
-      runScan(r, { signal: abort.signal, onProgress: (p) => { state.progress = p; }, onNote: (m) => state.notes.push(m) }, ctx)
+      scanLocked(r, { signal: abort.signal, onProgress: (p) => { state.progress = p; }, onNote: (m) => state.notes.push(m) }, ctx)
+        .finally(() => lock.release())
         .then((result) => { state.result = result; state.state = 'done'; })
         .catch((e) => { state.error = toErrorInfo(e); state.state = isSkeinError(e) && e.code === 'cancelled' ? 'cancelled' : 'failed'; });
       return { job: id };
@@ -122,15 +130,20 @@ export function createApi(ctx: ApiContext = {}) {
       let text: string;
       if (ext === '.json') text = JSON.stringify(rows, null, 1) + '\n';
       else if (ext === '.csv') {
+        // list columns are ";"-separated in driver order (a compound's label contains spaces and "&")
         text = stringify(rows.map((u) => [u.layer, u.unit, u.conceptCount, u.selectivity, u.flags.join(' '),
-          u.drivers.map((d) => `${d.label}:${d.share.toFixed(4)}`).join(' '), u.drivers.map((d) => d.auroc.toFixed(4)).join(' '),
-          u.drivers.map((d) => d.q.toExponential(3)).join(' '), u.explanation?.formula ?? '', u.explanation?.iou ?? '']),
-        { header: true, columns: ['layer', 'unit', 'concept_count', 'selectivity', 'flags', 'drivers', 'driver_auroc', 'driver_q', 'explanation', 'explanation_iou'] });
+          u.drivers.map((d) => `${d.label}:${d.share.toFixed(4)}`).join('; '), u.drivers.map((d) => d.auroc.toFixed(4)).join('; '),
+          u.drivers.map((d) => d.q.toExponential(3)).join('; '), u.explanation?.formula ?? '', u.explanation?.iou ?? '',
+          u.conceptLow, u.conceptHigh, u.drivers.map((d) => `${d.shareLow.toFixed(4)}-${d.shareHigh.toFixed(4)}`).join('; '),
+          u.drivers.map((d) => d.effect.toPrecision(4)).join('; '), u.modulators.map((m) => `${m.label} (of ${m.of})`).join('; '),
+          u.nested.map((x) => `${x.label} (within ${x.within})`).join('; '), u.explanation?.threshold ?? '']),
+        { header: true, columns: ['layer', 'unit', 'concept_count', 'selectivity', 'flags', 'drivers', 'driver_auroc', 'driver_q', 'explanation', 'explanation_iou',
+          'concept_low', 'concept_high', 'driver_share_interval', 'driver_effect', 'modulators', 'nested', 'explanation_threshold'] });
       } else {
         throw new SkeinError({ code: 'request', file: r.out, message: 'Scores export needs a .csv or .json file name.' });
       }
       writeFileDurably(r.out, text);
-      return { file: path.resolve(r.out), rows: rows.length, columns: ext === '.csv' ? 10 : 7 };
+      return { file: path.resolve(r.out), rows: rows.length, columns: ext === '.csv' ? 17 : 11 };
     },
 
     'export.activations': async (r: Request<'export.activations'>): Promise<ExportResult> => withStudy(r.study, (db) => {
