@@ -207,6 +207,8 @@ async function main(): Promise<void> {
     results.push({ name: 'scoring_seconds', value: job.scoreSeconds, unit: 's', target: null, note: `scoreStudy, ${sp.probes} × ${sp.units} × ${sp.labels}, end to end` });
     results.push({ name: 'scoring_unit_probes_per_s', value: (sp.units * sp.probes) / job.scoreSeconds, unit: 'unit·probes/s', target: null });
     results.push({ name: 'scoring_kernel_seconds', value: f.kernelSeconds, unit: 's', target: null, note: 'in memory, one Scratch' });
+    say(`joint model: kernel ${f2(f.kernelSeconds)} s vs pass 1 without it ${f.marginalSeconds.map(f2).join('/')} s (same units, interleaved): ${f2(f.jointOverMarginal)}× (target ≤ 2×, bootstrap included)`);
+    results.push({ name: 'scoring_joint_vs_marginal', value: f.jointOverMarginal, unit: 'ratio', target: '<= 2', note: 'kernel with the joint model (pass 1 + pass 2 incl. BH, bootstrap, rank) / pass 1 without it, same units interleaved' });
     results.push({ name: 'scoring_naive_vs_kernel', value: f.naiveSpeedup, unit: 'ratio', target: null, note: `full sort per unit and label, ${f.sampleUnits} units side by side` });
     results.push({ name: 'scoring_job_scratch_overhead', value: f.noScratchSlowdown, unit: 'ratio', target: null, note: 'pass 1 without a shared Scratch / with' });
     md.push('### Scoring', '', `${sp.probes} probes × ${sp.units} units × ${sp.labels} labels.`, '', '| what | seconds | unit·probes/s |', '|---|---|---|',
