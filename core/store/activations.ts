@@ -31,6 +31,18 @@ export function writeChunk(db: Database.Database, chunk: number, length: number,
   const insertAct = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, enc, argmax) VALUES (?, ?, ?, ?, ?, ?)`);
   const insertDone = db.prepare(`INSERT OR REPLACE INTO chunk_done (layer_id, chunk) VALUES (?, ?)`);
   const touch = db.prepare(`UPDATE run SET updated_at = ? WHERE id = 1`);
+  // Activations are a cache a rerun recomputes: their commits skip the fsync (WAL + NORMAL still never corrupts; a
+  // power cut may drop the last chunks, which resume redoes). Everything else on the connection stays FULL.
+  const previous = db.pragma('synchronous', { simple: true }) as number;
+  db.pragma('synchronous = NORMAL');
+  try {
+    writeChunkRows(db, insertAct, insertDone, touch, chunk, length, blocks);
+  } finally {
+    db.pragma(`synchronous = ${previous}`);
+  }
+}
+
+function writeChunkRows(db: Database.Database, insertAct: Database.Statement, insertDone: Database.Statement, touch: Database.Statement, chunk: number, length: number, blocks: ChunkBlock[]): void {
   db.transaction(() => {
     for (const b of blocks) {
       for (let u = 0; u < b.units; u++) {

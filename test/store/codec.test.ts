@@ -10,7 +10,7 @@ import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { decodeFloats, decodeFloatsInto, encodeFloats, ENC_PLAIN, ENC_ZERO_MASK } from '../../core/store/codec.ts';
 import { tempDir } from '../support/fixtures.ts';
-import { openStudyDb } from '../../core/store/study.ts';
+import { openStudyDb, syncLevel } from '../../core/store/study.ts';
 import { bindStudy, insertLayer, readBinding } from '../../core/store/binding.ts';
 import { readChunkSample, readLayerChunk, readUnit, writeChunk } from '../../core/store/activations.ts';
 
@@ -117,6 +117,9 @@ describe('activation codec', () => {
         for (let u = 0; u < units; u++) values.set(all[u].subarray(c * chunkSize, c * chunkSize + length), u * length);
         writeChunk(db, c, length, [{ layerId, units, values, argmax: null }]);
       }
+      // activation commits use synchronous=NORMAL (a cache resume recomputes) and hand the connection back at FULL (2),
+      // the level review annotations are written at
+      expect(syncLevel(db)).toBe(2);
       const binding = readBinding(db)!;
       for (let u = 0; u < units; u++) expect(bitsOf(readUnit(db, binding, layerId, u))).toEqual(bitsOf(all[u]));
       const lastChunk = readLayerChunk(db, layerId, 2);
