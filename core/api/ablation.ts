@@ -4,10 +4,11 @@
  */
 import crypto from 'node:crypto';
 import type { z } from 'zod';
-import type { ApiContext } from './context.ts';
+import { checkStoredPath, type ApiContext } from './context.ts';
 import type { ablationRequests } from './requests/ablation.ts';
 import { SkeinError, isSkeinError, type ErrorInfo } from '../errors.ts';
 import { openStudyDb, withStudyDb } from '../store/study.ts';
+import { withStudyLock } from '../store/lock.ts';
 import { readBinding, findLayer } from '../store/binding.ts';
 import { hasScores } from '../store/scores.ts';
 import { rankRows } from './screens/read-models.ts';
@@ -62,6 +63,10 @@ function unitView(db: Parameters<typeof rankRows>[0], file: string, layer: strin
 
 /** Bulk ablation of a layer in this process (the CLI's --all; the API's job runs the same). */
 export async function runAblateLayer(r: Req<'ablate.start'>, hooks: AblateHooks, ctx: ApiContext = {}): Promise<LayerSummary> {
+  return withStudyLock(r.study, 'removal-cost run', () => ablateLayerLocked(r, hooks, ctx));
+}
+
+async function ablateLayerLocked(r: Req<'ablate.start'>, hooks: AblateHooks, ctx: ApiContext): Promise<LayerSummary> {
   const db = openStudyDb(r.study, { nativeBinding: ctx.nativeBinding });
   try {
     const study = readBinding(db);
@@ -70,6 +75,12 @@ export async function runAblateLayer(r: Req<'ablate.start'>, hooks: AblateHooks,
   } finally {
     db.close();
   }
+}
+
+/** The model path a study stored, refused in browser mode when it lies outside the allowed folders. */
+function storedModel(modelPath: string, study: string, ctx: ApiContext): string {
+  checkStoredPath(modelPath, 'model file', study, ctx.allowedRoots);
+  return modelPath;
 }
 
 export function createAblationApi(ctx: ApiContext) {
@@ -81,7 +92,7 @@ export function createAblationApi(ctx: ApiContext) {
     return run;
   };
   const setupOf = (r: Req<'ablate.start'>, modelPath: string) => ({
-    model: r.model ?? modelPath, layer: r.layer, mode: r.mode ?? 'zero', value: r.value, sample: r.sample, seed: r.seed,
+    model: r.model ?? storedModel(modelPath, r.study, ctx), layer: r.layer, mode: r.mode ?? 'zero', value: r.value, sample: r.sample, seed: r.seed,
   });
 
   return {
@@ -111,7 +122,7 @@ export function createAblationApi(ctx: ApiContext) {
       const abort = new AbortController();
       const state: AblateJobState = { job: id, state: 'running', layer: r.layer, progress: null, notes: [], error: null, result: null };
       jobs.set(id, { state, abort });
-      runAblateLayer({ ...r, model: r.model ?? modelPath }, { signal: abort.signal, onProgress: (p) => { state.progress = p; }, onNote: (m) => state.notes.push(m) }, ctx).then((s) => {
+      runAblateLayer({ ...r, model: r.model ?? storedModel(modelPath, r.study, ctx) }, { signal: abort.signal, onProgress: (p) => { state.progress = p; }, onNote: (m) => state.notes.push(m) }, ctx).then((s) => {
         state.result = { ...s, run: runInfo(s.run) };
         state.state = 'done';
       }).catch((e) => {
