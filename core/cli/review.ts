@@ -13,9 +13,9 @@ export const REVIEW_HELP = `  skein review edit <study> <layer> <unit> [--tag T]
   skein review show <study> <layer> <unit> [--json]
   skein review list <study> [--tag T] [--status S] [--layer L] [--filter k=v,…] [--json]
   skein review undo <study> [--reviewer NAME]        revert your newest edit (repeat to go further back)
-  skein review resolve <study> <layer> <unit> <field> mine|theirs [--reviewer NAME]
+  skein review resolve <study> <layer> <unit> <field> here|bundle [--reviewer NAME]
   skein review export <study> --out bundle.json [--tag T] [--status S] [--layer L] [--filter k=v,…]
-  skein review import <study> <bundle.json> [--preview] [--map-by-name | --map a=b,…] [--keep mine|theirs] [--json]
+  skein review import <study> <bundle.json> [--preview] [--map-by-name | --map a=b,…] [--keep here|bundle] [--json]
                                   exit 3 when conflicts are left open (they are listed)
   skein review reviewer [NAME]    show or set your reviewer name (stored in the preferences file)
   skein report <study> --out report.html [--csv out.csv] (--tag T | --status S | --all | --filter k=v,…)
@@ -81,7 +81,7 @@ function mappingFrom(values: Record<string, unknown>): unknown {
 const show = (v: FieldValue) => (typeof v === 'boolean' ? (v ? 'tagged' : 'not tagged') : JSON.stringify(v.length > 60 ? `${v.slice(0, 59)}…` : v));
 
 export function conflictLines(conflicts: readonly ConflictDetail[]): string[] {
-  return conflicts.map((c) => `  ${c.layer} unit ${c.unit}  ${c.field}:  here ${show(c.mine.value)}${c.mine.author ? ` (${c.mine.author})` : ''}  ·  theirs ${show(c.theirs.value)} (${c.theirs.author ?? '?'})`);
+  return conflicts.map((c) => `  ${c.layer} unit ${c.unit}  ${c.field}:  here ${show(c.mine.value)}${c.mine.author ? ` (${c.mine.author})` : ''}  ·  bundle ${show(c.theirs.value)} (${c.theirs.author ?? '?'})`);
 }
 
 function printReview(r: UnitReview): void {
@@ -94,6 +94,13 @@ function printReview(r: UnitReview): void {
     console.log('history (newest first):');
     for (const e of r.history) console.log(`  ${e.at}  ${e.author.padEnd(12)} ${e.field} ${show(e.old)} → ${show(e.new)}${e.undoes ? '  (undo)' : ''}${e.origin === 'import' ? '  (imported)' : ''}`);
   }
+}
+
+/** Which side of a conflict to keep, in the CLI's words: "here" (this study) or "bundle"; mine/theirs still read. */
+function keepOf(word: string | undefined): 'mine' | 'theirs' | null {
+  if (word === 'here' || word === 'mine') return 'mine';
+  if (word === 'bundle' || word === 'theirs') return 'theirs';
+  return null;
 }
 
 function printImport(r: ImportResult | ReviewPreview, preview: boolean): void {
@@ -163,11 +170,12 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
       }
       case 'resolve': {
         const a = parse(rest, { reviewer: { type: 'string' } }, 5);
-        const [study, layer, unitText, field, keep] = a.positionals;
-        if (keep !== 'mine' && keep !== 'theirs') throw new UsageError(`the last argument is mine or theirs, got "${keep}"`);
+        const [study, layer, unitText, field, keepWord] = a.positionals;
+        const keep = keepOf(keepWord);
+        if (!keep) throw new UsageError(`the last argument is here (this study's value) or bundle (the bundle's), got "${keepWord}"`);
         const reviewer = await reviewerOf(api, a.values.reviewer);
         await api['review.resolve'](parseRequest('review.resolve', { study, reviewer, resolutions: [{ layer, unit: unitArg(unitText), field, keep }] }));
-        process.stderr.write(`resolved ${field} of ${layer} unit ${unitText}: kept ${keep}\n`);
+        process.stderr.write(`resolved ${field} of ${layer} unit ${unitText}: kept ${keep === 'mine' ? "this study's value" : "the bundle's value"}\n`);
         return 0;
       }
       case 'export': {
@@ -190,8 +198,8 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
           else printImport(p, true);
           return p.refused ? 1 : p.conflicts.length ? EXIT_CONFLICTS : 0;
         }
-        const keep = a.values.keep;
-        if (keep !== undefined && keep !== 'mine' && keep !== 'theirs') throw new UsageError(`--keep is mine or theirs, got "${keep}"`);
+        const keep = a.values.keep === undefined ? undefined : keepOf(a.values.keep as string);
+        if (keep === null) throw new UsageError(`--keep is here (this study's values) or bundle (the bundle's), got "${a.values.keep}"`);
         let resolutions: unknown[] | undefined;
         let reviewer: string | undefined = a.values.reviewer as string | undefined;
         if (keep) {
@@ -204,7 +212,7 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
         if (a.values.json) console.log(JSON.stringify(r, null, 1));
         else printImport(r, false);
         if (r.conflicts.length) {
-          process.stderr.write(`skein review import: ${r.conflicts.length} conflict${r.conflicts.length === 1 ? '' : 's'} left open. Decide them: rerun with --keep mine|theirs, or skein review resolve ${study} <layer> <unit> <field> mine|theirs.\n`);
+          process.stderr.write(`skein review import: ${r.conflicts.length} conflict${r.conflicts.length === 1 ? '' : 's'} left open. Decide them: rerun with --keep here|bundle, or skein review resolve ${study} <layer> <unit> <field> here|bundle.\n`);
           return EXIT_CONFLICTS;
         }
         return 0;

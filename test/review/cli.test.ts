@@ -66,8 +66,8 @@ describe('skein review and skein report', () => {
     r = skein(['review', 'import', theirs, anaBundle], benHome);
     expect(r.code).toBe(3);
     expect(r.out).toMatch(/2 conflicts left open/);
-    expect(r.out).toContain('planted unit 3  note:  here "only two?" (ben)  ·  theirs "three concepts" (ana)');
-    expect(r.out).toContain('planted unit 3  status:  here "doubtful" (ben)  ·  theirs "confirmed" (ana)');
+    expect(r.out).toContain('planted unit 3  note:  here "only two?" (ben)  ·  bundle "three concepts" (ana)');
+    expect(r.out).toContain('planted unit 3  status:  here "doubtful" (ben)  ·  bundle "confirmed" (ana)');
     expect(r.out).toMatch(/planted unit 3  tag:mixed: not tagged → tagged \(ana\)/);
     expect(r.out).toMatch(/planted unit 1  tag:for-meeting: not tagged → tagged \(ana\)/);
     expect(r.err).toMatch(/2 conflicts left open\. Decide them/);
@@ -82,9 +82,13 @@ describe('skein review and skein report', () => {
     r = skein(['review', 'list', theirs, '--filter', 'conflicted'], benHome);
     expect(r.out).toMatch(/planted\t3\tdoubtful\tfollow-up,mixed\tben\tCONFLICT note,status/);
 
-    r = skein(['review', 'resolve', theirs, 'planted', '3', 'status', 'theirs'], benHome);
+    r = skein(['review', 'resolve', theirs, 'planted', '3', 'status', 'mine-or-yours'], benHome);
+    expect(r.code).toBe(2);
+    expect(r.err).toContain('here (this study\'s value) or bundle (the bundle\'s), got "mine-or-yours"');
+    r = skein(['review', 'resolve', theirs, 'planted', '3', 'status', 'bundle'], benHome);
     expect(r.code, r.err).toBe(0);
-    r = skein(['review', 'import', theirs, anaBundle, '--keep', 'mine'], benHome);
+    expect(r.err).toContain("kept the bundle's value");
+    r = skein(['review', 'import', theirs, anaBundle, '--keep', 'here'], benHome);
     expect(r.code, r.out + r.err).toBe(0);
     expect(r.out).toMatch(/resolved 1 conflict/);
     const show = JSON.parse(skein(['review', 'show', theirs, 'planted', '3', '--json'], benHome).out);
