@@ -27,7 +27,7 @@ export type { ErrorInfo } from '../errors.ts';
 export type { ModelInfo, CapturableTensor } from '../model/types.ts';
 export type {
   RankRow, UnitDetail, LabelStatRow, TopExample, UnitTable, UnitDistributions, SimilarUnits, ConceptReach, ConceptReachRow,
-  LayerOverview, LayerOverviewRow, ScoreThresholds, UnitKind,
+  LayerStrata, LayerStrataRow, ScoreThresholds, UnitKind,
 } from './screens/read-models.ts';
 export type { ProgressReport } from '../extract/progress.ts';
 

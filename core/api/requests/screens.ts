@@ -1,4 +1,4 @@
-/** Requests only the screens make (unit table, unit profile panels, label reach, layer overview, example images). */
+/** Requests only the screens make (unit table, unit profile panels, label reach, layer strata, example images). */
 import { z } from 'zod';
 import { filePath, labelName, layerName, unitIndex } from './fields.ts';
 
@@ -18,8 +18,8 @@ export const screenRequests = {
   }),
   /** For one label: the units it drives, how exclusively, and its AUROC spread over all units. */
   'concept.units': z.strictObject({ study: filePath, label: labelName, top: z.number().int().min(1).max(5000).optional() }),
-  /** Per layer: concept-count histogram and the shares of polysemantic, dead and dense units. */
-  'layers.overview': z.strictObject({ study: filePath }),
+  /** Per layer (the Strata screen): concept-count histogram and how many units are of each kind. */
+  'layers.strata': z.strictObject({ study: filePath }),
   /** One probe's example image as a data: URL, read from inside the study's probe-set folder only. */
   'example.image': z.strictObject({ study: filePath, probe: z.number().int().min(0) }),
   /** Label names of up to 512 probes (captions of top examples). */

@@ -400,7 +400,7 @@ export function conceptReach(db: Database.Database, labelName: string, opts: { t
   };
 }
 
-export interface LayerOverviewRow {
+export interface LayerStrataRow {
   name: string; op: string; kind: LayerRow['kind']; units: number;
   dead: number; dense: number;
   /** Not dead or dense and no label passes the driver test. */
@@ -408,17 +408,17 @@ export interface LayerOverviewRow {
   /** Concept count in (0, polysemanticAt). */
   single: number;
   /** Concept count ≥ polysemanticAt. */
-  polysemantic: number;
+  mixed: number;
   meanConceptCount: number | null;
   maxConceptCount: number;
-  /** Units per concept-count bin (edges in LayerOverview.edges). */
+  /** Units per concept-count bin (edges in LayerStrata.edges). */
   histogram: number[];
 }
 
-export interface LayerOverview { polysemanticAt: number; edges: number[]; layers: LayerOverviewRow[]; thresholds: ScoreThresholds }
+export interface LayerStrata { polysemanticAt: number; edges: number[]; layers: LayerStrataRow[]; thresholds: ScoreThresholds }
 
 /** Per layer: how concept counts spread and how many units are of each kind (core/score/kind.ts). */
-export function layerOverview(db: Database.Database, file?: string): LayerOverview {
+export function layerStrata(db: Database.Database, file?: string): LayerStrata {
   requireScores(db, file);
   const layers = readLayers(db);
   const thresholds = scoreThresholds(db);
@@ -428,13 +428,12 @@ export function layerOverview(db: Database.Database, file?: string): LayerOvervi
   const width = 0.25;
   const bins = Math.max(8, Math.ceil(globalMax / width));
   const byLayer = new Map(layers.map((l) => [l.id, {
-    name: l.name, op: l.op, kind: l.kind, units: l.units, dead: 0, dense: 0, undriven: 0, single: 0, polysemantic: 0,
+    name: l.name, op: l.op, kind: l.kind, units: l.units, dead: 0, dense: 0, undriven: 0, single: 0, mixed: 0,
     meanConceptCount: null as number | null, maxConceptCount: 0, histogram: new Array(bins).fill(0), sum: 0, driven: 0,
   }]));
-  const field: Record<UnitKind, 'polysemantic' | 'single' | 'undriven' | 'dead' | 'dense'> = { mixed: 'polysemantic', single: 'single', undriven: 'undriven', dead: 'dead', dense: 'dense' };
   for (const u of rows) {
     const s = byLayer.get(u.layerId)!;
-    s[field[classifyUnit(u, thresholds.polysemanticAt)]]++;
+    s[classifyUnit(u, thresholds.polysemanticAt)]++;
     const cc = u.conceptCount;
     if (cc > 0) { s.sum += cc; s.driven++; }
     if (cc > s.maxConceptCount) s.maxConceptCount = cc;
