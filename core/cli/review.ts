@@ -18,7 +18,8 @@ export const REVIEW_HELP = `  skein review edit <study> <layer> <unit> [--tag T]
   skein review import <study> <bundle.json> [--preview] [--map-by-name | --map a=b,…] [--keep here|bundle] [--json]
                                   exit 3 when conflicts are left open (they are listed)
   skein review reviewer [NAME]    show or set your reviewer name (stored in the preferences file)
-  skein report <study> --out report.html [--csv out.csv] (--tag T | --status S | --all | --filter k=v,…)
+  skein report <study> --out report.html [--csv out.csv] [--top K | --tag T | --status S | --layer L | --all | --filter k=v,…]
+      no selection: the K top-ranked units (20 by default) with any review of them; --all: every reviewed unit
       filter keys: tag, status, layer, reviewer, text, conflicted; statuses: unreviewed looking confirmed doubtful parked`;
 
 /** Exit code of an import that merged but left conflicts for a person to decide. */
@@ -237,15 +238,33 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
   }
 }
 
+/** Units in a report written with no selection: the top of the ranking. */
+export const DEFAULT_REPORT_TOP = 20;
+
 export async function reportCommand(argv: string[], api: Api): Promise<number> {
   try {
-    const a = parse(argv, { ...FILTER_OPTIONS, out: { type: 'string' }, csv: { type: 'string' }, all: { type: 'boolean' }, reviewer: { type: 'string' } }, 1);
+    const a = parse(argv, { ...FILTER_OPTIONS, out: { type: 'string' }, csv: { type: 'string' }, all: { type: 'boolean' }, top: { type: 'string' }, reviewer: { type: 'string' } }, 1);
     if (typeof a.values.out !== 'string') throw new UsageError('report needs --out report.html');
-    const filter = filterFromArgs(a.values);
-    if (!a.values.all && !Object.keys(filter).length) throw new UsageError('say which units: --tag T, --status S, --layer L, --filter … or --all (every annotated unit)');
-    if (a.values.all && Object.keys(filter).length) throw new UsageError('--all takes every annotated unit; leave out the other filters or --all');
+    const study = a.positionals[0];
+    let filter = filterFromArgs(a.values);
+    const selected = Object.keys(filter).length > 0;
+    if (a.values.all && selected) throw new UsageError('--all takes every annotated unit; leave out the other filters or --all');
+    if (a.values.top !== undefined && (selected || a.values.all)) throw new UsageError('--top picks the top-ranked units; leave out the other filters or --top');
+    if (a.values.all) {
+      const reviewed = await api['review.list'](parseRequest('review.list', { study }));
+      if (reviewed.count === 0) {
+        process.stderr.write(`skein report: no unit of ${study} has a review yet, so --all selects nothing and no report was written. Leave out --all for the top-ranked units, or review units first (skein review edit … --tag T).\n`);
+        return 1;
+      }
+    } else if (!selected) {
+      // No selection: the study's results, the top-ranked units, with any review of them.
+      const top = a.values.top === undefined ? DEFAULT_REPORT_TOP : Number(a.values.top);
+      if (!Number.isInteger(top) || top < 1) throw new UsageError(`--top needs a whole number of units, got "${a.values.top}"`);
+      const ranked = await api['study.rank'](parseRequest('study.rank', { study, top }));
+      filter = { units: ranked.map((r) => ({ layer: r.layer, unit: r.unit })) };
+    }
     const r = await api['report.write'](parseRequest('report.write', {
-      study: a.positionals[0], out: a.values.out, csv: a.values.csv, filter, reviewer: a.values.reviewer,
+      study, out: a.values.out, csv: a.values.csv, filter, reviewer: a.values.reviewer,
     }));
     process.stderr.write(`wrote ${r.units} unit${r.units === 1 ? '' : 's'} to ${r.file} (${Math.round(r.bytes / 1024)} KiB)${r.csv ? ` and ${path.basename(r.csv)}` : ''}\n`);
     return 0;

@@ -116,6 +116,17 @@ describe('Skein in Chromium (browser mode)', () => {
     expect(defaults.length).toBeGreaterThanOrEqual(2); // the demo model has a conv and a dense stage (sample-data/README.md)
     expect(await page.locator('[data-tensors] tr:has(input[type="checkbox"]:checked)').evaluateAll((trs) => trs.map((tr) => tr.getAttribute('data-tensor')))).toEqual(defaults);
     await shot('capture-light');
+    // Before the scan, the other screens say what to do next and offer the button that does it (no CLI command).
+    await page.locator('header nav button', { hasText: 'Strata' }).click();
+    await page.locator('[data-scan-first]').waitFor();
+    expect(await page.locator('main').textContent()).not.toMatch(/skein scan/);
+    await shot('strata-unscanned-light');
+    await page.locator('header nav button', { hasText: 'Roster' }).click();
+    await page.locator('[data-scan-first]').waitFor();
+    await shot('roster-unscanned-light');
+    await page.locator('[data-scan-first]').click();
+    await page.getByRole('heading', { name: 'Capture' }).waitFor();
+    await page.locator('[data-tensors] tr:has(input[type="checkbox"]:checked)').first().waitFor();
     await page.locator('[data-start-scan]').click();
     await page.locator('[data-job-state]').waitFor();
     await page.getByRole('heading', { name: 'Roster' }).waitFor({ timeout: 240_000 });

@@ -19,12 +19,14 @@ function skein(args: string[], home: string) {
 describe('skein review and skein report', () => {
   let dir: string;
   let mine: string;
+  let study: string;
   let theirs: string;
   let anaHome: string;
   let benHome: string;
 
   beforeAll(async () => {
     const s = await scannedStudy();
+    study = s.study;
     dir = tempDir('skein-cli-review-');
     mine = copyStudy(s.study, path.join(dir, 'ana.study'));
     theirs = copyStudy(s.study, path.join(dir, 'ben.study'));
@@ -129,9 +131,23 @@ describe('skein review and skein report', () => {
     expect(r.err).toMatch(/wrote 2 units/);
     r = skein(['report', mine, '--out', html, '--status', 'confirmed'], anaHome);
     expect(r.err).toMatch(/wrote 1 unit/);
+    // As the README shows it: no selection writes the study's results, its top-ranked units with their reviews.
+    const ranked = JSON.parse(skein(['rank', mine, '--json'], anaHome).out) as unknown[];
     r = skein(['report', mine, '--out', html], anaHome);
-    expect(r.code).toBe(2);
-    expect(r.err).toMatch(/say which units: --tag T, --status S/);
+    expect(r.code, r.err).toBe(0);
+    const n = Math.min(20, ranked.length);
+    expect(r.err).toMatch(new RegExp(`wrote ${n} units? to`));
+    expect(fs.readFileSync(html, 'utf8')).toContain(`${n} selected units`);
+    r = skein(['report', mine, '--out', html, '--top', '1'], anaHome);
+    expect(r.err).toMatch(/wrote 1 unit to/);
+    // --all on a study nobody reviewed says so and writes nothing.
+    const fresh = copyStudy(study, path.join(dir, 'fresh.study'));
+    const none = path.join(dir, 'none.html');
+    r = skein(['report', fresh, '--out', none, '--all'], anaHome);
+    expect(r.code).toBe(1);
+    expect(r.err).toMatch(/has a review yet, so --all selects nothing and no report was written/);
+    expect(fs.existsSync(none)).toBe(false);
+    expect(skein(['help'], anaHome).out).toMatch(/skein report .*--layer L/);
     r = skein(['report', mine, '--out', html, '--status', 'agreed'], anaHome);
     expect(r.code).toBe(1);
     expect(r.err).toMatch(/filter\.statuses\.0: Invalid request report\.write: a status is one of/);
