@@ -62,3 +62,17 @@ describe('focusBack', () => {
     expect(focusBack(null, () => main)).toBe(main);
   });
 });
+
+import { captionLabels } from '../../app/renderer/src/lib/profile.ts';
+
+describe('captionLabels (the top-probe caption, issue 11: nothing cut off, drivers first)', () => {
+  it('puts the unit’s driver labels first, marked, then every other label, leaving none out', () => {
+    expect(captionLabels(['amber', 'bar', 'upper-left', 'disc'], ['disc', 'amber'])).toEqual([
+      { label: 'disc', driver: true }, { label: 'amber', driver: true }, { label: 'bar', driver: false }, { label: 'upper-left', driver: false },
+    ]);
+  });
+  it('leaves out only the labels the strip shares', () => {
+    expect(captionLabels(['amber', 'bar'], ['amber'], ['amber'])).toEqual([{ label: 'bar', driver: false }]);
+    expect(captionLabels([], ['amber'])).toEqual([]);
+  });
+});
