@@ -10,6 +10,7 @@ import { screenRequests } from './requests/screens.ts';
 import { fileRequests } from './requests/files.ts';
 import { reviewRequests } from './requests/review.ts';
 import { ablationRequests } from './requests/ablation.ts';
+import { lensRequests } from './requests/lens.ts';
 
 /** Every request the API answers, by method name. */
 export const requests = {
@@ -18,6 +19,7 @@ export const requests = {
   ...fileRequests,
   ...reviewRequests,
   ...ablationRequests,
+  ...lensRequests,
 } as const;
 
 export type Method = keyof typeof requests;
@@ -72,3 +74,4 @@ export interface ScanResult {
 
 export interface ExportResult { file: string; rows: number; columns: number }
 export type { UnitAblationView, LayerAblationView, LayerAblationRow, AblateJobState, AblationRunInfo, UnitCost, LabelCost, Comparison } from './ablation.ts';
+export type { LensView, LensJobState, UnitLoadings, LensExport, LensResult, LensConcept } from './lens.ts';

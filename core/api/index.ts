@@ -17,6 +17,7 @@ import { createFileApi } from './files.ts';
 import { createReviewApi } from './review.ts';
 import { checkPaths, type ApiContext } from './context.ts';
 import { createAblationApi } from './ablation.ts';
+import { createLensApi } from './lens.ts';
 import { requests, type Method, type Request, type JobState, type ScanResult, type StudySummary, type ProbeSummary, type ExportResult } from './contract.ts';
 
 export { requests };
@@ -121,15 +122,20 @@ export function createApi(ctx: ApiContext = {}) {
       let text: string;
       if (ext === '.json') text = JSON.stringify(rows, null, 1) + '\n';
       else if (ext === '.csv') {
+        // list columns are ";"-separated in driver order (a compound's label contains spaces and "&")
         text = stringify(rows.map((u) => [u.layer, u.unit, u.conceptCount, u.selectivity, u.flags.join(' '),
-          u.drivers.map((d) => `${d.label}:${d.share.toFixed(4)}`).join(' '), u.drivers.map((d) => d.auroc.toFixed(4)).join(' '),
-          u.drivers.map((d) => d.q.toExponential(3)).join(' '), u.explanation?.formula ?? '', u.explanation?.iou ?? '']),
-        { header: true, columns: ['layer', 'unit', 'concept_count', 'selectivity', 'flags', 'drivers', 'driver_auroc', 'driver_q', 'explanation', 'explanation_iou'] });
+          u.drivers.map((d) => `${d.label}:${d.share.toFixed(4)}`).join('; '), u.drivers.map((d) => d.auroc.toFixed(4)).join('; '),
+          u.drivers.map((d) => d.q.toExponential(3)).join('; '), u.explanation?.formula ?? '', u.explanation?.iou ?? '',
+          u.conceptLow, u.conceptHigh, u.drivers.map((d) => `${d.shareLow.toFixed(4)}-${d.shareHigh.toFixed(4)}`).join('; '),
+          u.drivers.map((d) => d.effect.toPrecision(4)).join('; '), u.modulators.map((m) => `${m.label} (of ${m.of})`).join('; '),
+          u.nested.map((x) => `${x.label} (within ${x.within})`).join('; '), u.explanation?.threshold ?? '']),
+        { header: true, columns: ['layer', 'unit', 'concept_count', 'selectivity', 'flags', 'drivers', 'driver_auroc', 'driver_q', 'explanation', 'explanation_iou',
+          'concept_low', 'concept_high', 'driver_share_interval', 'driver_effect', 'modulators', 'nested', 'explanation_threshold'] });
       } else {
         throw new SkeinError({ code: 'request', file: r.out, message: 'Scores export needs a .csv or .json file name.' });
       }
       writeFileDurably(r.out, text);
-      return { file: path.resolve(r.out), rows: rows.length, columns: ext === '.csv' ? 10 : 7 };
+      return { file: path.resolve(r.out), rows: rows.length, columns: ext === '.csv' ? 17 : 11 };
     },
 
     'export.activations': async (r: Request<'export.activations'>): Promise<ExportResult> => withStudy(r.study, (db) => {
@@ -151,7 +157,7 @@ export function createApi(ctx: ApiContext = {}) {
       return { file: path.resolve(r.out), rows: binding.probeCount, columns: layer.units };
     }),
   };
-  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx), ...createAblationApi(ctx) };
+  return { ...api, ...createScreenApi(ctx), ...createFileApi(ctx), ...createReviewApi(ctx), ...createAblationApi(ctx), ...createLensApi(ctx) };
 }
 
 export type Api = ReturnType<typeof createApi>;

@@ -9,6 +9,7 @@ import type { RankRow, UnitDetail, ModelInfo, ProgressReport } from '../api/cont
 import { REVIEW_HELP, reviewCommand, reportCommand } from './review.ts';
 import { UsageError, parse, intOption, unitArg } from './args.ts';
 import { ABLATE_HELP, ablateCommand } from './ablate.ts';
+import { LENS_HELP, lensCommand } from './lens.ts';
 
 const HELP = `skein — find the polysemantic units of an ONNX model on a labelled probe set
 
@@ -21,6 +22,7 @@ const HELP = `skein — find the polysemantic units of an ONNX model on a labell
   skein demo [--study file]      scan the bundled demo and print the ranked units
 ${REVIEW_HELP}
 ${ABLATE_HELP}
+${LENS_HELP}
 
 Scores are statistical hypotheses about the model on this probe set, not proof: check a unit before pruning or
 trusting it.`;
@@ -61,10 +63,11 @@ function table(head: string[], rows: string[][]): void {
 }
 
 function printRank(rows: RankRow[]): void {
-  table(['#', 'layer', 'unit', 'concepts', 'select.', 'flags', 'drivers (share)', 'best formula (IoU)'], rows.map((r, i) => [
-    String(i + 1), r.layer, String(r.unit), fmt(r.conceptCount, 2), fmt(r.selectivity, 2), r.flags.join(','),
+  table(['#', 'layer', 'unit', 'concepts [90%]', 'select.', 'flags', 'drivers (share)', 'modulators', 'formula (IoU)'], rows.map((r, i) => [
+    String(i + 1), r.layer, String(r.unit), `${fmt(r.conceptCount, 2)} [${fmt(r.conceptLow, 1)}–${fmt(r.conceptHigh, 1)}]`, fmt(r.selectivity, 2), r.flags.join(','),
     r.drivers.map((d) => `${d.label} ${Math.round(d.share * 100)}%`).join(', '),
-    r.explanation ? `${r.explanation.formula} (${fmt(r.explanation.iou, 2)})` : '',
+    r.modulators.map((m) => `${m.label}→${m.of}`).join(', '),
+    r.explanation ? `${r.explanation.formula} (${fmt(r.explanation.iou, 2)}${r.explanation.basis === 'top set' ? ', top set' : ''})` : '',
   ]));
   console.log('\nConcept counts are hypotheses about the model on this probe set, not proof; check a unit before pruning or trusting it.');
 }
@@ -72,13 +75,27 @@ function printRank(rows: RankRow[]): void {
 function printUnit(u: UnitDetail): void {
   console.log(`${u.layer} unit ${u.unit}   rank ${u.rank + 1}   concept count ${fmt(u.conceptCount, 2)}   selectivity ${fmt(u.selectivity, 2)}${u.flags.length ? `   flags: ${u.flags.join(', ')}` : ''}`);
   console.log(`active on ${fmt(u.activeFraction * 100, 1)}% of probes   mean ${fmt(u.mean)}   max ${fmt(u.max)}   top-set threshold ${fmt(u.topThreshold)}`);
-  if (u.explanation) console.log(`best formula: ${u.explanation.formula}   IoU ${fmt(u.explanation.iou)}`);
-  console.log('\ndrivers:');
+  if (u.explanation) {
+    console.log(u.explanation.basis === 'drivers'
+      ? `formula: ${u.explanation.formula}   IoU ${fmt(u.explanation.iou)} with activation > ${fmt(u.explanation.threshold)}`
+      : `formula (no driver; best OR against the top set): ${u.explanation.formula}   IoU ${fmt(u.explanation.iou)}`);
+  }
+  console.log(`concept count ${fmt(u.conceptCount, 2)}, 90% interval ${fmt(u.conceptLow, 2)}–${fmt(u.conceptHigh, 2)} (the ranking uses ${fmt(u.conceptLow, 2)})`);
+  console.log('\ndrivers (alone = with it and no other driver; none = with no driver):');
   if (u.drivers.length === 0) console.log('  (none)');
-  else table(['  label', 'share', 'AUROC', 'q'], u.drivers.map((d) => [`  ${d.label}`, `${Math.round(d.share * 100)}%`, fmt(d.auroc), d.q.toExponential(2)]));
+  else table(['  driver', 'share [90%]', 'AUROC', 'q', 'alone n / mean', 'with others n / mean', 'none n / mean', 'effect'], u.drivers.map((d) => [
+    `  ${d.label}${d.sameAs.length ? ` (same concept as ${d.sameAs.join(', ')})` : ''}`,
+    `${Math.round(d.share * 100)}% [${Math.round(d.shareLow * 100)}–${Math.round(d.shareHigh * 100)}]`, fmt(d.auroc), d.q.toExponential(2),
+    `${d.alone.n} / ${fmt(d.alone.mean)}`, `${d.others.n} / ${fmt(d.others.mean)}`, `${d.none.n} / ${fmt(d.none.mean)}`, fmt(d.effect)]));
+  if (u.modulators.length) {
+    console.log('\nmodulators (raise a driver\'s response only; not counted):');
+    table(['  label', 'of', 'AUROC', 'q', 'effect'], u.modulators.map((m) => [`  ${m.label}`, m.of, fmt(m.auroc), m.q.toExponential(2), fmt(m.effect)]));
+  }
+  for (const x of u.nested) console.log(`note: ${x.label} (AUROC ${fmt(x.auroc)} alone) contains ${x.within} in this probe set; its response is that of ${x.within}, so it is not a second concept.`);
   console.log('\nper label:');
-  table(['  label', 'n', 'mean with', 'mean without', 'AUROC', 'top hits', 'p', 'q'],
-    [...u.stats].sort((a, b) => b.auroc - a.auroc).map((s) => [`  ${s.label}`, String(s.n1), fmt(s.meanWith), fmt(s.meanWithout), fmt(s.auroc), String(s.topHits), s.p.toExponential(2), s.q.toExponential(2)]));
+  table(['  label', 'n', 'mean with', 'mean without', 'AUROC', 'cond. AUROC', 'cond. q', 'top hits', 'enrich. p', 'enrich. q'],
+    [...u.stats].sort((a, b) => b.auroc - a.auroc).map((s) => [`  ${s.label}`, String(s.n1), fmt(s.meanWith), fmt(s.meanWithout), fmt(s.auroc),
+      fmt(s.condAuroc), s.condQ === null ? '—' : s.condQ.toExponential(2), String(s.topHits), s.p.toExponential(2), s.q.toExponential(2)]));
   console.log('\ntop examples:');
   table(['  probe', 'activation', 'location', 'id', 'text / image'], u.topExamples.map((e) => [`  ${e.probe}`, fmt(e.value), e.location === null ? '' : String(e.location), e.id ?? '', e.text ?? e.image ?? '']));
   console.log('\nThese are statistical hypotheses about the model on this probe set, not proof.');
@@ -161,6 +178,8 @@ export async function main(argv: string[]): Promise<number> {
         return await reviewCommand(rest, api);
       case 'report':
         return await reportCommand(rest, api);
+      case 'lens':
+        return await lensCommand(rest, api);
       case 'ablate':
         return await ablateCommand(rest, api);
       case undefined:

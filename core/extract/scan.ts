@@ -4,6 +4,7 @@ import type Database from 'better-sqlite3';
 import * as ort from 'onnxruntime-node';
 import { SkeinError } from '../errors.ts';
 import { readModel, exposeTensors, createSession, unitLayout, batchPolicy, dryRunShapes } from '../model/index.ts';
+import { canPoolInGraph, exposePooled, type PooledOutputs } from '../model/pool-graph.ts';
 import type { ModelInfo, ValueInfo } from '../model/types.ts';
 import { openProbeSet, resolveFillShapes, float16BitsToNumber } from '../probes/index.ts';
 import type { ProbeSet } from '../probes/types.ts';
@@ -61,8 +62,8 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
   try {
     const chunkSize = bindToStudy(db, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
 
-    const bytes = exposeTensors(fs.readFileSync(info.path), selected.map((t) => t.name), { modelPath: info.path });
-    const session = await createSession(bytes, { intraOpThreads: req.threads }, info.path);
+    const modelBytes = fs.readFileSync(info.path);
+    let session = await createSession(exposeTensors(modelBytes, selected.map((t) => t.name), { modelPath: info.path }), { intraOpThreads: req.threads }, info.path);
     try {
       const fixed = fixedBatch(info.inputs.filter((i) => probes.inputs.some((s) => s.name === i.name) || i.name in probes.fill));
       const batch = fixed ?? Math.max(1, Math.floor(req.batch ?? DEFAULT_BATCH));
@@ -73,6 +74,15 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
       const dims = await dryRunShapes(info, session, feeder.feeds(0, 1));
       const shapes = new Map(selected.map((t) => [t.name, dims[t.name].slice(1)]));
       const layers = upsertLayers(db, selected, shapes, req.pool ?? 'max', note);
+      // Pool inside the graph (core/model/pool-graph.ts): onnxruntime returns per-unit values, not whole maps.
+      let pooledOutputs: Map<string, PooledOutputs> | null = null;
+      if (canPoolInGraph(info.opsetVersion)) {
+        const plans = layers.map((l) => ({ name: l.name, kind: l.kind, dims: l.dims, pool: (l.pool === 'none' ? 'max' : l.pool) as Pool }));
+        const pooled = exposePooled(modelBytes, plans, { modelPath: info.path });
+        await session.release();
+        session = await createSession(pooled.bytes, { intraOpThreads: req.threads }, info.path);
+        pooledOutputs = pooled.outputs;
+      }
 
       const chunks = Math.ceil(probes.count / chunkSize);
       const pending: { chunk: number; layers: LayerRow[] }[] = [];
@@ -102,12 +112,27 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
         for (let off = 0; off < length; off += batch) {
           throwIfAborted(hooks.signal);
           const count = Math.min(batch, length - off);
-          const out = await session.run(feeder.feeds(start + off, count), todo.map((l) => l.name));
-          for (const buf of buffers) {
-            const t = out[buf.layer.name];
-            const pooled = poolBatch(asFloats(t), count, buf.layer.kind, buf.layer.dims, buf.layer.pool as Pool);
-            scatter(pooled.values, buf.values, buf.layer.units, count, length, off);
-            if (buf.argmax && pooled.argmax) scatter(pooled.argmax, buf.argmax, buf.layer.units, count, length, off);
+          if (pooledOutputs) {
+            const fetch = todo.flatMap((l) => { const o = pooledOutputs!.get(l.name)!; return o.argmax ? [o.values, o.argmax] : [o.values]; });
+            const out = await session.run(feeder.feeds(start + off, count), fetch);
+            for (const buf of buffers) {
+              const o = pooledOutputs.get(buf.layer.name)!;
+              scatter(out[o.values].data as Float32Array, buf.values, buf.layer.units, count, length, off);
+              if (buf.argmax && o.argmax) {
+                const at = out[o.argmax].data as Int32Array;
+                scatter(new Uint32Array(at.buffer, at.byteOffset, at.length), buf.argmax, buf.layer.units, count, length, off);
+              } else if (buf.argmax && o.constantArgmax !== null) {
+                for (let u = 0; u < buf.layer.units; u++) buf.argmax.fill(o.constantArgmax, u * length + off, u * length + off + count);
+              }
+            }
+          } else {
+            const out = await session.run(feeder.feeds(start + off, count), todo.map((l) => l.name));
+            for (const buf of buffers) {
+              const t = out[buf.layer.name];
+              const pooled = poolBatch(asFloats(t), count, buf.layer.kind, buf.layer.dims, buf.layer.pool as Pool);
+              scatter(pooled.values, buf.values, buf.layer.units, count, length, off);
+              if (buf.argmax && pooled.argmax) scatter(pooled.argmax, buf.argmax, buf.layer.units, count, length, off);
+            }
           }
           progress.advance(count);
         }

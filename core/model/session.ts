@@ -6,7 +6,7 @@ import { analyzeGraph, ELEM_CODES, subgraphsOf } from './graph.ts';
 import { onnx, type OnnxProto } from './proto.ts';
 import { decodeModel, externalDataRefs } from './read.ts';
 import { BFLOAT16_REASON, SUBGRAPH_REASON } from './tensors.ts';
-import type { ModelInfo } from './types.ts';
+import type { ElemType, ModelInfo } from './types.ts';
 
 /** Protobuf messages cannot exceed 2 GiB, so inlining external data is capped there. */
 const MAX_INLINE_BYTES = 2 ** 31 - 1;
@@ -55,18 +55,29 @@ export function inlineExternalData(model: OnnxProto.ModelProto, modelPath: strin
  * `modelPath` is needed when the model keeps weights in external-data files: they are read and inlined.
  */
 export function exposeTensors(modelBytes: Uint8Array, names: string[], opts: { modelPath?: string } = {}): Uint8Array {
-  const file = opts.modelPath;
-  const model = decodeModel(modelBytes, file);
-  const graph = model.graph!;
+  const model = decodeModel(modelBytes, opts.modelPath);
+  exposeInGraph(model.graph!, names, opts.modelPath);
+  return finishExposed(model, opts.modelPath);
+}
+
+/**
+ * Adds the named top-level tensors to graph.output (element type only, no shape), after checking each can be
+ * captured; returns each name's element type. Shared by exposeTensors and exposePooled (pool-graph.ts).
+ */
+export function exposeInGraph(graph: OnnxProto.IGraphProto, names: string[], file?: string): Map<string, ElemType> {
   const scope = analyzeGraph(graph).scope;
   const topLevel = new Set((graph.node ?? []).flatMap((n) => n.output ?? []));
   const nested = namesInSubgraphs(graph);
   const outputs = new Set((graph.output ?? []).map((v) => v.name ?? ''));
   graph.output = [...(graph.output ?? [])];
+  const types = new Map<string, ElemType>();
 
   for (const name of new Set(names)) {
-    if (outputs.has(name)) continue;
     const where = `tensor ${name}`;
+    if (outputs.has(name)) {
+      types.set(name, scope.get(name)?.elemType ?? 'other');
+      continue;
+    }
     if (!topLevel.has(name)) {
       const message = nested.has(name)
         ? `Tensor "${name}" cannot be captured: it is ${SUBGRAPH_REASON}. Choose another tensor.`
@@ -78,14 +89,20 @@ export function exposeTensors(modelBytes: Uint8Array, names: string[], opts: { m
       throw new SkeinError({ code: 'model', file, where, message: `Tensor "${name}" cannot be captured: ${BFLOAT16_REASON}. Choose another tensor.` });
     }
     const code = elemType ? ELEM_CODES[elemType] : undefined;
-    if (!code) {
+    if (!elemType || !code) {
       throw new SkeinError({ code: 'model', file, where, message: `Skein cannot tell the element type of tensor "${name}", so it cannot capture it. Choose another tensor, or export the model with shape information (value_info).` });
     }
     graph.output.push({ name, type: { tensorType: { elemType: code } } });
     outputs.add(name);
+    types.set(name, elemType);
   }
+  return types;
+}
+
+/** Inlines external weights (onnxruntime cannot resolve them for a model given as bytes) and serializes. */
+export function finishExposed(model: OnnxProto.ModelProto, file?: string): Uint8Array {
   if (file) inlineExternalData(model, file);
-  else if (externalDataRefsPresent(graph)) {
+  else if (externalDataRefsPresent(model.graph!)) {
     throw new SkeinError({ code: 'model', where: 'graph.initializer', message: 'This model keeps weights in separate data files; open it from its file so Skein can find them.' });
   }
   return onnx.ModelProto.encode(model).finish();

@@ -182,6 +182,39 @@ export function wuPalmerToRelatedness(wup: number): number {
   return Math.max(0, (wup - 0.5) / 0.5);
 }
 
+/**
+ * Complementary error function erfc(x), Chebyshev fit with fractional error below 1.2e-7 everywhere
+ * (Press et al., Numerical Recipes, 2nd ed., §6.2, "erfcc"; coefficients from memory, checked against scipy in the tests).
+ */
+export function erfc(x: number): number {
+  const z = Math.abs(x);
+  const t = 1 / (1 + 0.5 * z);
+  const ans = t * Math.exp(-z * z - 1.26551223 + t * (1.00002368 + t * (0.37409196 + t * (0.09678418 + t * (-0.18628806 +
+    t * (0.27886807 + t * (-1.13520398 + t * (1.48851587 + t * (-0.82215223 + t * 0.17087277)))))))));
+  return x >= 0 ? ans : 2 - ans;
+}
+
+/** Upper tail of the standard normal, P(Z ≥ z) = erfc(z/√2)/2 (definition). */
+export function normalUpperTail(z: number): number {
+  return 0.5 * erfc(z / Math.SQRT2);
+}
+
+/**
+ * One-sided Mann–Whitney test that the first sample is stochastically larger (Mann & Whitney 1947), normal
+ * approximation with tie correction and continuity correction 0.5, as scipy.stats.mannwhitneyu(method='asymptotic',
+ * alternative='greater'): σ² = n1·n0/12 · ((n+1) − Σ(t³−t)/(n(n−1))), z = (U − n1·n0/2 − 0.5)/σ.
+ * `u` counts pairs the first sample wins, ties half; `tieSum` = Σ over tie groups of the pooled sample of t³ − t.
+ * Returns 1 when a sample is empty or every value ties.
+ */
+export function mannWhitneyGreaterP(u: number, n1: number, n0: number, tieSum: number): number {
+  if (n1 === 0 || n0 === 0) return 1;
+  const n = n1 + n0;
+  const variance = ((n1 * n0) / 12) * (n + 1 - tieSum / (n * (n - 1)));
+  if (!(variance > 0)) return 1;
+  const z = (u - (n1 * n0) / 2 - 0.5) / Math.sqrt(variance);
+  return normalUpperTail(z);
+}
+
 /** Bin of v among `bins` equal-width bins starting at `min` (the last bin is closed on the right; numpy.histogram's convention). */
 export function binOf(v: number, min: number, width: number, bins: number): number {
   if (!(width > 0)) return 0;

@@ -1,3 +1,4 @@
+import type { JointResult } from './joint.ts';
 /** Inputs and outputs of core/score. All statistics here are per layer. */
 
 export interface ScoreOptions {
@@ -51,15 +52,58 @@ export interface LabelStat {
   q: number;               // BH q-value across the layer
 }
 
-export interface Driver { label: number; auroc: number; q: number; share: number }
+/**
+ * A driver of a unit from the joint model: a label, or a compound of 2–3 labels that drives it only together.
+ * auroc and q are the conditional test's (alone vs none, core/score/joint.ts); share is the driver's part of
+ * Σ effects, with its 90% bootstrap interval.
+ */
+export interface Driver {
+  /** The first label id (kept for readers of the one-label form); `labels` names every part of a compound. */
+  label: number;
+  labels: number[];
+  auroc: number;
+  q: number;
+  share: number;
+  shareLow: number;
+  shareHigh: number;
+  /** mean alone − mean none */
+  effect: number;
+  upper: number;
+  alone: TermGroup;
+  others: { n: number; mean: number };
+  none: TermGroup;
+  /** Labels of other drivers counted as the same concept because their probes nearly coincide (IoU ≥ 0.9). */
+  sameAs: number[][];
+}
+
+/** A label that raises the response of a driver only (not counted as a concept). */
+export interface Modulator {
+  label: number;
+  of: number[];
+  auroc: number;
+  q: number;
+  /** the driver's alone probes with the label / without it */
+  with: TermGroup;
+  without: TermGroup;
+}
+
+/** A label the joint model set aside because its response is that of a driver it (nearly) contains. */
+export interface Nested { label: number; within: number[]; auroc: number }
 
 export interface UnitScore {
   unit: number;
-  conceptCount: number;    // Leinster–Cobbold diversity of the driver mixture; 0 when no driver
+  conceptCount: number;    // Leinster–Cobbold diversity of the driver shares; 0 when no driver
+  /** 90% parametric-bootstrap interval of the concept count; the ranking uses conceptLow. */
+  conceptLow: number;
+  conceptHigh: number;
   selectivity: number;     // class selectivity index (Morcos et al. 2018)
   flags: ('dead' | 'dense')[];
   drivers: Driver[];       // sorted by share, largest first
-  explanation: { labels: number[]; iou: number } | null; // best OR-formula of up to 3 labels
+  modulators: Modulator[];
+  nested: Nested[];
+  /** Formula: OR over terms (each an AND of labels). basis 'drivers': built from the drivers, unit binarised at
+   *  `threshold` (IoU over all probes); basis 'top set': no driver, the best OR of up to 3 labels against the top set. */
+  explanation: UnitFormula | null;
   evidence: number;        // sum over drivers of -log10(q), the tie-breaker
   activeFraction: number;
   mean: number;
@@ -67,6 +111,9 @@ export interface UnitScore {
   topThreshold: number;    // activation at the top-quantile cut
   topProbes: Int32Array;   // probe indices of the top examples, highest first (ScoreOptions.topExamples)
   topValues: Float32Array;
+  /** conditional AUROC and q of each single label as last tested by the joint model (NaN / 1 when not a candidate) */
+  condAuroc: Float64Array;
+  condQ: Float64Array;
   stats: LabelStat[];      // one per label, by label id
 }
 
@@ -75,6 +122,8 @@ export type RelatednessSource = Relatedness['source'][number];
 
 /** Best OR-formula of up to 3 labels (Mu & Andreas 2020): label ids ascending and its IoU with the top set. */
 export interface Explanation { labels: number[]; iou: number }
+
+export interface UnitFormula { terms: number[][]; iou: number; threshold: number | null; basis: 'drivers' | 'top set' }
 
 /**
  * Pass-1 result for one unit: everything that does not need the layer's other units.
@@ -102,4 +151,34 @@ export interface UnitPartial {
   topProbes: Int32Array;
   topValues: Float32Array;
   explanation: Explanation | null;
+  /** The joint model's result (core/score/joint.ts): drivers, modulators, nested labels, tests, formula. */
+  joint: JointResult;
 }
+
+/** Count, mean and standard deviation (n − 1) of the activations of a group of probes. */
+export interface TermGroup { n: number; mean: number; sd: number }
+
+/**
+ * One term of a unit's joint model (core/score/joint.ts): a label, or a compound (every one of 2–3 labels present).
+ * - driver: `alone` = probes with the term and no other driver (its parts and labels containing it excepted),
+ *   `others` = with the term and another driver, `none` = probes with no driver; auroc/p compare alone with none.
+ * - modulator: a label that raises the response of driver `of` only: `alone` = that driver's alone probes with the
+ *   label, `none` = its alone probes without it; auroc/p compare the two.
+ */
+export interface JointTerm {
+  labels: number[];
+  kind: 'driver' | 'modulator';
+  of: number[] | null;
+  auroc: number;
+  p: number;
+  /** Fraction of the `none` group below the median of the `alone` group (ties half); NaN for modulators. */
+  upper: number;
+  alone: TermGroup;
+  others: { n: number; mean: number };
+  none: TermGroup;
+  /** drivers only: the labels of other drivers whose probes nearly coincide with this one's (IoU ≥ 0.9) */
+  sameAs: number[][];
+}
+
+/** The formula built from the drivers: OR over `terms`, each an AND of its labels, and the unit binarised at `threshold`. */
+export interface JointFormula { terms: number[][]; iou: number; threshold: number }

@@ -14,6 +14,7 @@
  */
 import { SkeinError } from '../errors.ts';
 import { createExplainScratch, explainTopSet, type ExplainScratch } from './explain.ts';
+import { createJointScratch, emptyJoint, jointModel, type JointScratch } from './joint.ts';
 import { PreparedLabels, prepareLabels } from './labels.ts';
 import {
   aurocFromRankSum,
@@ -94,6 +95,7 @@ export class Scratch {
   sumWith: Float64Array;      // L
   shiftedMeans: Float64Array; // L
   explain: ExplainScratch;
+  joint: JointScratch;
 
   constructor(labels: LabelMatrix | PreparedLabels) {
     this.prepared = labels instanceof PreparedLabels ? labels : prepareLabels(labels);
@@ -108,6 +110,7 @@ export class Scratch {
     this.sumWith = new Float64Array(l);
     this.shiftedMeans = new Float64Array(l);
     this.explain = createExplainScratch(l);
+    this.joint = createJointScratch(l, n);
   }
 }
 
@@ -255,6 +258,17 @@ export function scoreUnitPartial(
   const topValues = new Float32Array(exampleCount);
   for (let r = 0; r < exampleCount; r++) topValues[r] = values[topProbes[r]];
 
+  work.explain.insidePairs.clear();
+  work.explain.insideTriples.clear();
+  const explanation = explainTopSet(prepared, order.subarray(0, topCount), topHits, work.explain);
+  // a dead unit is never tested (see finishLayer), so its joint model is not computed
+  const joint = activeCount / n < opts.deadFraction
+    ? emptyJoint(labelTotal)
+    : jointModel(
+      { values, order, prepared, marginalAuroc: auroc, topCount, insidePairs: work.explain.insidePairs, insideTriples: work.explain.insideTriples },
+      opts, work.joint,
+    );
+
   return {
     unit,
     probeCount: n,
@@ -274,6 +288,7 @@ export function scoreUnitPartial(
     topMass,
     topProbes,
     topValues,
-    explanation: explainTopSet(prepared, order.subarray(0, topCount), topHits, work.explain),
+    explanation,
+    joint,
   };
 }

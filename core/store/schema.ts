@@ -160,6 +160,52 @@ export const migrations: string[] = [
     dense = EXISTS (SELECT 1 FROM json_each(unit_score.flags) WHERE value = 'dense');
   ALTER TABLE unit_score DROP COLUMN flags;
   `,
+  // 4 → 5: the superposition lens (core/geometry), cached per layer and reused while `key` (a hash of everything
+  // it depends on) matches; deleted with its layer.
+  `
+  CREATE TABLE lens (
+    layer_id INTEGER PRIMARY KEY REFERENCES layer(id) ON DELETE CASCADE,
+    key TEXT NOT NULL,
+    result_json TEXT NOT NULL,            -- the figures (core/geometry/lens.ts LensResult)
+    directions BLOB NOT NULL,             -- float32 [concepts × units], row-major: the concept directions
+    computed_at TEXT NOT NULL
+  );
+  `,
+  // 5 → 6: the joint driver model (core/score/joint.ts). `unit_driver` is the normalised driver table the screens
+  // and exports read: one row per driver, modulator or nested label of a unit. `layer_null` holds the shuffled-label
+  // baseline per layer. Stored scores from before are discarded (score_run emptied), so the next scan rescores.
+  `
+  ALTER TABLE unit_score ADD COLUMN concept_low REAL;    -- 90% bootstrap interval of concept_count
+  ALTER TABLE unit_score ADD COLUMN concept_high REAL;
+  ALTER TABLE unit_label ADD COLUMN cond_auroc REAL;     -- conditional AUROC in the joint model; NULL when not a candidate
+  ALTER TABLE unit_label ADD COLUMN cond_q REAL;         -- its BH q across the layer's joint tests; NULL when not tested
+  CREATE TABLE unit_driver (
+    layer_id INTEGER NOT NULL REFERENCES layer(id) ON DELETE CASCADE,
+    unit INTEGER NOT NULL,
+    position INTEGER NOT NULL,            -- drivers by share (largest first), then modulators, then nested labels
+    kind TEXT NOT NULL CHECK (kind IN ('driver', 'modulator', 'nested')),
+    labels TEXT NOT NULL,                 -- JSON label ids; 2–3 for a compound (all present together)
+    of_labels TEXT,                       -- JSON label ids of the driver a modulator raises / a nested label contains
+    share REAL, share_low REAL, share_high REAL,   -- drivers only
+    auroc REAL NOT NULL,                  -- driver: alone vs none; modulator: with vs without inside the driver's alone probes; nested: marginal
+    q REAL,                               -- BH across the layer's joint tests; NULL for nested
+    effect REAL,                          -- mean alone − mean none (modulator: mean with − mean without)
+    upper REAL,                           -- fraction of the none group below the alone group's median
+    n_alone INTEGER, mean_alone REAL, n_others INTEGER, mean_others REAL, n_none INTEGER, mean_none REAL,
+    same_as TEXT,                         -- JSON: labels of drivers counted as the same concept (probe IoU ≥ 0.9)
+    PRIMARY KEY (layer_id, unit, position)
+  ) WITHOUT ROWID;
+  CREATE TABLE layer_null (
+    layer_id INTEGER PRIMARY KEY REFERENCES layer(id) ON DELETE CASCADE,
+    units_sampled INTEGER NOT NULL,       -- units scored again with shuffled labels
+    mixed_sampled INTEGER NOT NULL,       -- of those, called mixed (concept count ≥ mixed_at)
+    mixed_expected REAL NOT NULL,         -- scaled to the layer: mixed_sampled / units_sampled × units
+    mixed_real INTEGER NOT NULL,          -- units called mixed with the real labels
+    mixed_at REAL NOT NULL,
+    seed INTEGER NOT NULL
+  );
+  DELETE FROM score_run;
+  `,
 ];
 
 export const SCHEMA_VERSION = migrations.length;

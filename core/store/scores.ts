@@ -8,26 +8,53 @@ import { SkeinError } from '../errors.ts';
 import type { Driver, Relatedness, ScoreOptions, UnitScore } from '../score/types.ts';
 import { blobToFloats, blobToInt32, floatsToBlob, now } from './study.ts';
 import type { LayerRow } from './binding.ts';
+import { clearDriverTables, writeLayerNull, writeUnitDrivers, type DriverRecord, type LayerNullRecord } from './drivers.ts';
 
 /** Every table the scores occupy: emptied together before a new set is written. */
 const SCORE_TABLES = ['unit_label', 'unit_score', 'relatedness', 'score_run'] as const;
 
 const nullIfNaN = (x: number) => (Number.isNaN(x) ? null : x);
 
+/** The normalised rows of one unit: drivers (by share), modulators, nested labels. */
+export function driverRecords(s: UnitScore): DriverRecord[] {
+  return [
+    ...s.drivers.map((d): DriverRecord => ({
+      kind: 'driver', labels: d.labels, of: null, share: d.share, shareLow: d.shareLow, shareHigh: d.shareHigh, auroc: d.auroc, q: d.q,
+      effect: d.effect, upper: d.upper, nAlone: d.alone.n, meanAlone: d.alone.mean, nOthers: d.others.n, meanOthers: d.others.mean,
+      nNone: d.none.n, meanNone: d.none.mean, sameAs: d.sameAs,
+    })),
+    ...s.modulators.map((m): DriverRecord => ({
+      kind: 'modulator', labels: [m.label], of: m.of, share: null, shareLow: null, shareHigh: null, auroc: m.auroc, q: m.q,
+      effect: m.with.mean - m.without.mean, upper: null, nAlone: m.with.n, meanAlone: m.with.mean, nOthers: null, meanOthers: null,
+      nNone: m.without.n, meanNone: m.without.mean, sameAs: [],
+    })),
+    ...s.nested.map((x): DriverRecord => ({
+      kind: 'nested', labels: [x.label], of: x.within, share: null, shareLow: null, shareHigh: null, auroc: x.auroc, q: null,
+      effect: null, upper: null, nAlone: null, meanAlone: null, nOthers: null, meanOthers: null, nNone: null, meanNone: null, sameAs: [],
+    })),
+  ];
+}
+
 /** Replaces the study's scores with a new ranked set in one transaction (rank = position in `ranked`). */
-export function writeScores(db: Database.Database, ranked: { layer: LayerRow; score: UnitScore }[], rel: Relatedness, key: string, opts: ScoreOptions): void {
+export function writeScores(db: Database.Database, ranked: { layer: LayerRow; score: UnitScore }[], rel: Relatedness, key: string, opts: ScoreOptions, nulls: LayerNullRecord[] = []): void {
   db.transaction(() => {
     for (const t of SCORE_TABLES) db.prepare(`DELETE FROM ${t}`).run();
+    clearDriverTables(db);
     const insScore = db.prepare(`INSERT INTO unit_score (layer_id, unit, rank, concept_count, selectivity, evidence, dead, dense, drivers, explanation,
-      active_fraction, mean, max, top_threshold, top_probes, top_values) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
-    const insLabel = db.prepare(`INSERT INTO unit_label (layer_id, unit, label, n1, mean_with, mean_without, auroc, top_hits, p, q) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
+      active_fraction, mean, max, top_threshold, top_probes, top_values, concept_low, concept_high) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
+    const insLabel = db.prepare(`INSERT INTO unit_label (layer_id, unit, label, n1, mean_with, mean_without, auroc, top_hits, p, q, cond_auroc, cond_q) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
     ranked.forEach(({ layer, score: s }, rank) => {
+      // the drivers column keeps its one-label form {label, auroc, q, share} plus `labels`; unit_driver has everything
+      const compact = s.drivers.map((d) => ({ label: d.label, labels: d.labels, auroc: d.auroc, q: d.q, share: d.share }));
       insScore.run(layer.id, s.unit, rank, s.conceptCount, s.selectivity, s.evidence, s.flags.includes('dead') ? 1 : 0, s.flags.includes('dense') ? 1 : 0,
-        JSON.stringify(s.drivers), s.explanation ? JSON.stringify(s.explanation) : null, s.activeFraction, s.mean, s.max, s.topThreshold,
-        Buffer.from(s.topProbes.buffer, s.topProbes.byteOffset, s.topProbes.byteLength), floatsToBlob(s.topValues));
+        JSON.stringify(compact), s.explanation ? JSON.stringify(s.explanation) : null, s.activeFraction, s.mean, s.max, s.topThreshold,
+        Buffer.from(s.topProbes.buffer, s.topProbes.byteOffset, s.topProbes.byteLength), floatsToBlob(s.topValues), s.conceptLow, s.conceptHigh);
       // A mean over no probes is NaN, which SQLite stores as NULL; readers map it back to null.
-      for (const st of s.stats) insLabel.run(layer.id, s.unit, st.label, st.n1, nullIfNaN(st.meanWith), nullIfNaN(st.meanWithout), st.auroc, st.topHits, st.p, st.q);
+      s.stats.forEach((st, l) => insLabel.run(layer.id, s.unit, st.label, st.n1, nullIfNaN(st.meanWith), nullIfNaN(st.meanWithout), st.auroc, st.topHits, st.p, st.q,
+        nullIfNaN(s.condAuroc[l]), Number.isNaN(s.condAuroc[l]) ? null : s.condQ[l]));
+      writeUnitDrivers(db, layer.id, s.unit, driverRecords(s));
     });
+    for (const n of nulls) writeLayerNull(db, n);
     const insRel = db.prepare(`INSERT INTO relatedness (a, b, similarity, source) VALUES (?, ?, ?, ?)`);
     const L = rel.labels.length;
     for (let a = 0; a < L; a++) for (let b = 0; b < L; b++) insRel.run(a, b, rel.matrix[a * L + b], rel.source[a * L + b]);
@@ -37,7 +64,10 @@ export function writeScores(db: Database.Database, ranked: { layer: LayerRow; sc
 
 /** Forgets the stored scores (the next scoring job recomputes them). */
 export function clearScores(db: Database.Database): void {
-  db.transaction(() => { for (const t of SCORE_TABLES) db.prepare(`DELETE FROM ${t}`).run(); })();
+  db.transaction(() => {
+    for (const t of SCORE_TABLES) db.prepare(`DELETE FROM ${t}`).run();
+    clearDriverTables(db);
+  })();
 }
 
 /** The key the stored scores were computed under, or null when there are none. */
@@ -66,7 +96,10 @@ export interface StoredUnitScore {
   dead: boolean; dense: boolean;
   /** Largest share first. */
   drivers: Driver[];
-  explanation: { labels: number[]; iou: number } | null;
+  /** formula: OR over terms, each an AND of labels (see UnitFormula) */
+  explanation: { terms: number[][]; iou: number; threshold: number | null; basis: 'drivers' | 'top set' } | null;
+  /** 90% bootstrap interval of the concept count (equal to it for scores without one) */
+  conceptLow: number; conceptHigh: number;
   activeFraction: number; mean: number; max: number; topThreshold: number;
   topProbes: Int32Array; topValues: Float32Array;
 }
@@ -74,7 +107,7 @@ export interface StoredUnitScore {
 interface ScoreRowRaw {
   layer_id: number; unit: number; rank: number; concept_count: number; selectivity: number; evidence: number;
   dead: number; dense: number; drivers: string; explanation: string | null; active_fraction: number; mean: number; max: number;
-  top_threshold: number; top_probes: Buffer; top_values: Buffer;
+  top_threshold: number; top_probes: Buffer; top_values: Buffer; concept_low: number | null; concept_high: number | null;
 }
 
 function decodeScore(r: ScoreRowRaw): StoredUnitScore {
@@ -82,6 +115,7 @@ function decodeScore(r: ScoreRowRaw): StoredUnitScore {
     layerId: r.layer_id, unit: r.unit, rank: r.rank, conceptCount: r.concept_count, selectivity: r.selectivity, evidence: r.evidence,
     dead: r.dead === 1, dense: r.dense === 1, drivers: JSON.parse(r.drivers),
     explanation: r.explanation ? JSON.parse(r.explanation) : null,
+    conceptLow: r.concept_low ?? r.concept_count, conceptHigh: r.concept_high ?? r.concept_count,
     activeFraction: r.active_fraction, mean: r.mean, max: r.max, topThreshold: r.top_threshold,
     topProbes: blobToInt32(r.top_probes), topValues: blobToFloats(r.top_values),
   };
@@ -144,13 +178,17 @@ export function rankOfUnit(db: Database.Database, layerName: string, unit: numbe
 }
 
 /** A stored per unit × label statistic; means over no probes are null. */
-export interface StoredLabelStat { label: number; n1: number; meanWith: number | null; meanWithout: number | null; auroc: number; topHits: number; p: number; q: number }
+export interface StoredLabelStat {
+  label: number; n1: number; meanWith: number | null; meanWithout: number | null; auroc: number; topHits: number; p: number; q: number;
+  /** conditional AUROC and its BH q in the joint model; null when the label was not a candidate */
+  condAuroc: number | null; condQ: number | null;
+}
 
 /** One unit's statistics for every label, by label id. */
 export function readLabelStats(db: Database.Database, layerId: number, unit: number): StoredLabelStat[] {
-  return (db.prepare(`SELECT label, n1, mean_with, mean_without, auroc, top_hits, p, q FROM unit_label WHERE layer_id = ? AND unit = ? ORDER BY label`).raw()
-    .all(layerId, unit) as [number, number, number | null, number | null, number, number, number, number][])
-    .map(([label, n1, meanWith, meanWithout, auroc, topHits, p, q]) => ({ label, n1, meanWith, meanWithout, auroc, topHits, p, q }));
+  return (db.prepare(`SELECT label, n1, mean_with, mean_without, auroc, top_hits, p, q, cond_auroc, cond_q FROM unit_label WHERE layer_id = ? AND unit = ? ORDER BY label`).raw()
+    .all(layerId, unit) as [number, number, number | null, number | null, number, number, number, number, number | null, number | null][])
+    .map(([label, n1, meanWith, meanWithout, auroc, topHits, p, q, condAuroc, condQ]) => ({ label, n1, meanWith, meanWithout, auroc, topHits, p, q, condAuroc, condQ }));
 }
 
 /** One unit's AUROC per label, highest first. */

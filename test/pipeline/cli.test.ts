@@ -44,11 +44,13 @@ describe('skein CLI', () => {
     const rows = JSON.parse(r.stdout);
     expect(rows.length).toBe(PLANTED_UNITS.length + 2); // planted + logits layers
     for (const row of rows) {
-      expect(Object.keys(row).sort()).toEqual(['conceptCount', 'drivers', 'explanation', 'flags', 'layer', 'selectivity', 'unit']);
-      for (const d of row.drivers) expect(Object.keys(d).sort()).toEqual(['auroc', 'label', 'q', 'share']);
-      if (row.explanation) expect(Object.keys(row.explanation).sort()).toEqual(['formula', 'iou']);
+      // the fields other tools read stay; the joint model's are added beside them
+      expect(Object.keys(row)).toEqual(expect.arrayContaining(['conceptCount', 'drivers', 'explanation', 'flags', 'layer', 'selectivity', 'unit', 'conceptLow', 'conceptHigh', 'modulators', 'nested']));
+      for (const d of row.drivers) expect(Object.keys(d)).toEqual(expect.arrayContaining(['auroc', 'label', 'q', 'share', 'shareLow', 'shareHigh', 'labels']));
+      if (row.explanation) expect(Object.keys(row.explanation)).toEqual(expect.arrayContaining(['formula', 'iou', 'threshold', 'basis']));
     }
-    const unflagged = rows.filter((x: { flags: string[] }) => x.flags.length === 0).map((x: { conceptCount: number }) => x.conceptCount);
+    // ranked on the conservative figure: the lower end of the concept count's interval
+    const unflagged = rows.filter((x: { flags: string[] }) => x.flags.length === 0).map((x: { conceptLow: number }) => x.conceptLow);
     expect(unflagged).toEqual([...unflagged].sort((a, b) => b - a));
     const planted = skein('rank', study, '--layer', 'planted', '--top', '2', '--json');
     const top2 = JSON.parse(planted.stdout);

@@ -9,6 +9,9 @@ import { beforeAll, describe, expect, it } from 'vitest';
 import { createApi, dispatch, runScan } from '../../core/api/index.ts';
 import { binOf, pearson } from '../../core/score/stats.ts';
 import { sampleChunks } from '../../core/api/screens/read-models.ts';
+import { openStudyDb } from '../../core/store/study.ts';
+import { readScoreOptions } from '../../core/store/scores.ts';
+import { scoreStudy } from '../../core/score/job.ts';
 import { PLANTED_UNITS, tempDir, writePlanted } from '../support/fixtures.ts';
 
 const unitOf = (name: string) => PLANTED_UNITS.findIndex((u) => u.name === name);
@@ -162,6 +165,27 @@ describe('screen requests on the planted study', () => {
     fs.writeFileSync(path.join(probes, 'notes.txt'), 'x');
     await expect(api['example.image']({ study, probe: 3 })).rejects.toMatchObject({ code: 'probes', message: expect.stringContaining('PNG') });
     await expect(api['example.image']({ study, probe: 5 })).rejects.toMatchObject({ code: 'request', where: 'probe' });
+  });
+
+  it('classifies with the polysemanticAt the scores were made with, stored among their options', async () => {
+    const copy = path.join(dir, 'strict.study');
+    fs.copyFileSync(study, copy);
+    const db = openStudyDb(copy);
+    try {
+      // blue+square has two unrelated drivers (concept count ≈ 2, construction): mixed at 1.5, single at 2.5.
+      expect(scoreStudy(db, { polysemanticAt: 2.5 }).reused).toBe(false);
+      expect(readScoreOptions(db)?.polysemanticAt).toBe(2.5);
+    } finally {
+      db.close();
+    }
+    const t = await api['units.table']({ study: copy });
+    const kindOf = (name: string) => t.kinds[t.kind[t.unit.indexOf(unitOf(name))]];
+    expect(t.thresholds.polysemanticAt).toBe(2.5);
+    expect(kindOf('blue+square')).toBe('single');
+    expect(kindOf('red+circle+top')).toBe('mixed'); // ≈ 3 concepts
+    const strata = await api['layers.strata']({ study: copy });
+    expect(strata.polysemanticAt).toBe(2.5);
+    expect(strata.layers[0].mixed).toBe(t.kind.filter((k) => t.kinds[k] === 'mixed').length);
   });
 
   it('validates screen requests at the boundary', async () => {

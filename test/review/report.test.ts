@@ -85,7 +85,8 @@ describe('meeting report', () => {
     expect(await first.locator('.note h2').textContent()).toBe('Three concepts');
     expect(await first.locator('.note').textContent()).toContain('<script>window.pwned = 1</script>');
     expect(await first.locator('.note a, .note img').count()).toBe(0);
-    expect(await first.locator('svg.plot title').first().textContent()).toBe('Mixture: circle 33%, red 33%, top 33%');
+    // three equal drivers: their order within the mixture follows sampling noise in the shares
+    expect(await first.locator('svg.plot title').first().textContent()).toMatch(/^Mixture: (?=.*circle 33%)(?=.*red 33%)(?=.*top 33%)/);
     const thumbs = first.locator('.examples img');
     expect(await thumbs.count()).toBe(8);
     expect(await thumbs.evaluateAll((imgs) => imgs.every((i) => (i as HTMLImageElement).complete && (i as HTMLImageElement).naturalWidth === 24))).toBe(true);

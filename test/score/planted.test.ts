@@ -87,11 +87,11 @@ describe('planted units', () => {
     expect(ranked.map((item) => item.score.unit)).toEqual([3, 1, 2, 0, 4, 5]);
   });
 
-  it('explains the related unit by the OR of its two labels', () => {
-    // top set (150) ⊂ amber ∪ teal (≈1500 probes): IoU = 150 / |amber ∪ teal|
+  it('builds the related unit\'s formula from its two drivers, binarised where IoU is best', () => {
+    // the unit is 3·amber + 3·teal + noise: above ≈1.5 exactly the probes with amber or teal, so IoU ≈ 1
     const explanation = scores[2].explanation!;
-    expect(explanation.labels.map((l) => LABELS[l])).toEqual(['amber', 'teal']);
-    const union = scores[2].stats[0].n1 + scores[2].stats[1].n1;
-    expect(explanation.iou).toBeCloseTo(150 / union, 12);
+    expect(explanation.basis).toBe('drivers');
+    expect(explanation.terms.map((t) => t.map((l) => LABELS[l])).sort()).toEqual([['amber'], ['teal']]);
+    expect(explanation.iou).toBeGreaterThan(0.99);
   });
 });

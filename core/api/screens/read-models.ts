@@ -12,6 +12,7 @@ import {
   readLabelStats, readLabelAurocs, unitsByAuroc, scoredUnitCount, type StoredUnitScore,
 } from '../../store/scores.ts';
 import { binOf, pearson } from '../../score/stats.ts';
+import { readAllDrivers, readLayerNulls, readUnitDrivers, type DriverRecord } from '../../store/drivers.ts';
 import { defaultScoreOptions } from '../../score/unit.ts';
 import { UNIT_KINDS, classifyUnit, type UnitKind } from '../../score/kind.ts';
 import { readExampleImage } from '../../probes/example-image.ts';
@@ -23,15 +24,39 @@ export interface RankRow {
   layer: string;
   unit: number;
   conceptCount: number;
+  /** 90% bootstrap interval of the concept count (the ranking uses the lower end) */
+  conceptLow: number;
+  conceptHigh: number;
   selectivity: number;
   flags: string[];
-  drivers: { label: string; auroc: number; q: number; share: number }[];
-  explanation: { formula: string; iou: number } | null;
+  /** label: the driver's label, or a compound's labels joined by " & " (all present together) */
+  drivers: RankDriver[];
+  /** labels that raise a driver's response only; not counted as concepts */
+  modulators: { label: string; of: string; auroc: number; q: number; effect: number }[];
+  /** labels set aside because they (nearly) contain a driver; `within` names that driver */
+  nested: { label: string; within: string; auroc: number }[];
+  /** formula: "a & b | c" (& binds tighter than |); threshold: the activation it binarises the unit at (null: top set) */
+  explanation: { formula: string; iou: number; threshold: number | null; basis: 'drivers' | 'top set' } | null;
 }
+
+export interface RankDriver {
+  label: string;
+  labels: string[];
+  auroc: number; q: number; share: number; shareLow: number; shareHigh: number;
+  effect: number; upper: number;
+  alone: { n: number; mean: number | null }; others: { n: number; mean: number | null }; none: { n: number; mean: number | null };
+  /** other drivers counted as the same concept (their probes nearly coincide) */
+  sameAs: string[];
+}
+
+/** Per layer: units called mixed with the real labels and, beside it, the shuffled-label baseline. */
+export interface LayerNullRow { layer: string; units: number; mixedReal: number; mixedExpected: number; unitsSampled: number; mixedSampled: number; mixedAt: number }
 
 export interface LabelStatRow {
   /** null when no probe has (or every probe has) the label */
   label: string; n1: number; meanWith: number | null; meanWithout: number | null; auroc: number; topHits: number; p: number; q: number;
+  /** conditional AUROC and its BH q in the joint model (null when the label was not a candidate) */
+  condAuroc: number | null; condQ: number | null;
 }
 
 export interface TopExample {
@@ -56,21 +81,60 @@ export interface UnitDetail extends RankRow {
   topExamples: TopExample[];
 }
 
-export function formula(labels: number[], names: string[]): string {
-  return labels.map((l) => names[l]).join(' OR ');
+/** A compound's name: its labels joined by " & ". */
+export function termName(labels: number[], names: string[]): string {
+  return labels.map((l) => names[l]).join(' & ');
+}
+
+/** Our formula notation: terms joined by " | ", each term's labels by " & " (& binds tighter). */
+export function formula(terms: number[][], names: string[]): string {
+  return terms.map((t) => termName(t, names)).join(' | ');
+}
+
+function toDrivers(records: DriverRecord[], names: string[]): Pick<RankRow, 'drivers' | 'modulators' | 'nested'> {
+  const drivers: RankDriver[] = [];
+  const modulators: RankRow['modulators'] = [];
+  const nested: RankRow['nested'] = [];
+  for (const r of records) {
+    if (r.kind === 'driver') {
+      drivers.push({
+        label: termName(r.labels, names), labels: r.labels.map((l) => names[l]), auroc: r.auroc, q: r.q ?? 1,
+        share: r.share ?? 0, shareLow: r.shareLow ?? 0, shareHigh: r.shareHigh ?? 0, effect: r.effect ?? 0, upper: r.upper ?? 0,
+        alone: { n: r.nAlone ?? 0, mean: r.meanAlone }, others: { n: r.nOthers ?? 0, mean: r.meanOthers }, none: { n: r.nNone ?? 0, mean: r.meanNone },
+        sameAs: r.sameAs.map((ls) => termName(ls, names)),
+      });
+    } else if (r.kind === 'modulator') {
+      modulators.push({ label: termName(r.labels, names), of: termName(r.of ?? [], names), auroc: r.auroc, q: r.q ?? 1, effect: r.effect ?? 0 });
+    } else {
+      nested.push({ label: termName(r.labels, names), within: termName(r.of ?? [], names), auroc: r.auroc });
+    }
+  }
+  return { drivers, modulators, nested };
+}
+
+/** The shuffled-label baseline beside the real count of mixed units, per layer (empty when not computed). */
+export function layerNullRows(db: Database.Database): LayerNullRow[] {
+  const layers = new Map(readLayers(db).map((l) => [l.id, l]));
+  return readLayerNulls(db).map((r) => ({
+    layer: layers.get(r.layerId)!.name, units: layers.get(r.layerId)!.units, mixedReal: r.mixedReal, mixedExpected: r.mixedExpected,
+    unitsSampled: r.unitsSampled, mixedSampled: r.mixedSampled, mixedAt: r.mixedAt,
+  }));
 }
 
 const flagWords = (u: { dead: boolean; dense: boolean }): string[] => (u.dead ? ['dead'] : u.dense ? ['dense'] : []);
 
-function toRankRow(s: StoredUnitScore, layerName: string, names: string[]): RankRow {
+function toRankRow(s: StoredUnitScore, layerName: string, names: string[], records: DriverRecord[]): RankRow {
+  const ex = s.explanation;
   return {
     layer: layerName,
     unit: s.unit,
     conceptCount: s.conceptCount,
+    conceptLow: s.conceptLow,
+    conceptHigh: s.conceptHigh,
     selectivity: s.selectivity,
     flags: flagWords(s),
-    drivers: s.drivers.map((d) => ({ label: names[d.label], auroc: d.auroc, q: d.q, share: d.share })),
-    explanation: s.explanation ? { formula: formula(s.explanation.labels, names), iou: s.explanation.iou } : null,
+    ...toDrivers(records, names),
+    explanation: ex && ex.terms ? { formula: formula(ex.terms, names), iou: ex.iou, threshold: ex.threshold, basis: ex.basis } : null,
   };
 }
 
@@ -80,7 +144,8 @@ export function rankRows(db: Database.Database, opts: { layer?: string; top?: nu
   const layers = new Map(readLayers(db).map((l) => [l.id, l.name]));
   const names = labelNames(db);
   const layer = opts.layer ? findLayer(db, opts.layer, opts.file) : null;
-  return readUnitScores(db, { layerId: layer?.id, limit: opts.top }).map((s) => toRankRow(s, layers.get(s.layerId)!, names));
+  const records = readAllDrivers(db, layer?.id);
+  return readUnitScores(db, { layerId: layer?.id, limit: opts.top }).map((s) => toRankRow(s, layers.get(s.layerId)!, names, records.get(`${s.layerId}:${s.unit}`) ?? []));
 }
 
 function checkUnit(layer: LayerRow, unit: number, file?: string, where = 'unit'): void {
@@ -104,7 +169,7 @@ export function unitDetail(db: Database.Database, layerName: string, unit: numbe
     return { probe: p, value: s.topValues[i], location: locations[i], id: e?.id ?? null, text: e?.text ?? null, image: e?.image ?? null };
   });
   return {
-    ...toRankRow(s, layer.name, names), rank: s.rank, kind: classifyUnit(s, scoreThresholds(db).polysemanticAt), evidence: s.evidence,
+    ...toRankRow(s, layer.name, names, readUnitDrivers(db, layer.id, unit)), rank: s.rank, kind: classifyUnit(s, scoreThresholds(db).polysemanticAt), evidence: s.evidence,
     activeFraction: s.activeFraction, mean: s.mean, max: s.max, topThreshold: s.topThreshold, layerKind: layer.kind, layerDims: layer.dims, stats, topExamples,
   };
 }

@@ -10,6 +10,7 @@ export type Route =
   | { screen: 'reach'; study: string; label?: string }
   | { screen: 'strata'; study: string }
   | { screen: 'toll'; study: string; layer?: string }
+  | { screen: 'lens'; study: string; layer?: string }
   | { screen: 'merge'; study: string };
 
 export type Screen = Route['screen'];
@@ -38,6 +39,9 @@ export function parseRoute(hash: string): Route {
       if (study && layer !== null && Number.isInteger(unit) && unit >= 0 && params.get('unit') !== '') return { screen, study, layer, unit };
       break;
     }
+    case 'lens':
+      if (study) return params.get('layer') ? { screen, study, layer: params.get('layer')! } : { screen, study };
+      break;
     case 'reach':
       if (study) return params.get('label') ? { screen, study, label: params.get('label')! } : { screen, study };
       break;
