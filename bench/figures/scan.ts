@@ -1,20 +1,16 @@
 /**
  * Scan overhead: a full scan (every default layer captured and written to the study) against raw onnxruntime-node
- * inference of the same model, batch size and probes with no extra outputs. A third variant captures and pools the
- * same layers but writes nothing, so the report can say where the overhead goes.
+ * inference of the same model, batch size and probes with no extra outputs. A third variant runs the scan's own graph
+ * (layers exposed and pooled in the graph) and stores nothing; with the disk's write rate it gives the physical limit.
  */
 import fs from 'node:fs';
 import path from 'node:path';
 import * as ort from 'onnxruntime-node';
 import { createSession, exposeTensors, readModel, unitLayout } from '../../core/model/index.ts';
-import { Worker } from 'node:worker_threads';
-import { extract, selectLayers, DEFAULT_BATCH, DEFAULT_CHUNK } from '../../core/extract/scan.ts';
-import { openStudyDb } from '../../core/store/study.ts';
-import { bindStudy, insertLayer } from '../../core/store/binding.ts';
-import { poolBatch } from '../../core/extract/pool.ts';
+import { extract, selectLayers, DEFAULT_BATCH } from '../../core/extract/scan.ts';
+import { exposePooled } from '../../core/model/pool-graph.ts';
 import { openNpy } from '../../core/probes/index.ts';
 import type { BenchModel } from '../lib/models.ts';
-import { exposePooled } from '../lib/pool-in-graph.ts';
 import { writeProbeSet } from '../lib/probes.ts';
 import { median, timed } from '../lib/measure.ts';
 
@@ -27,28 +23,27 @@ export interface ScanFigure {
   units: number;
   activationBytes: number;
   rawSeconds: number[];
+  /** The scan's own graph (layers exposed and pooled in the graph), nothing stored: inference with the tensors exposed. */
   captureSeconds: number[];
   scanSeconds: number[];
   /** CPU seconds of this process (all threads), same runs. */
   rawCpu: number[];
   captureCpu: number[];
   scanCpu: number[];
-  /** Conv models only: capture with the pooling done inside the graph (the proposal in bench/lib/pool-in-graph.ts). */
-  graphPoolSeconds: number[] | null;
-  graphPoolCpu: number[] | null;
-  graphPoolRate: number | null;
-  graphPoolRatio: number | null;
-  /** Dense models only: the scan with its chunk commits on a worker thread (the proposal above). */
-  pipelinedSeconds: number[] | null;
-  pipelinedCpu: number[] | null;
-  pipelinedRate: number | null;
-  pipelinedRatio: number | null;
+  /** The disk's sequential write rate (bytes/s) measured beside each scan with the study's byte count. */
+  diskRates: number[];
+  /** Physical limit per rep: max(capture seconds, study bytes / disk rate). */
+  limitSeconds: number[];
   rawRate: number;
   captureRate: number;
   scanRate: number;
   ratio: number;
   captureRatio: number;
   studyBytes: number;
+  /** Study file bytes (with its WAL) per million stored activations. */
+  mbPerMillion: number;
+  /** Median of scan seconds / physical-limit seconds over the reps. */
+  limitRatio: number;
 }
 
 /** All probes of the set in memory, so the raw baseline pays for nothing but inference. */
@@ -74,38 +69,40 @@ async function rawInference(modelBytes: Uint8Array, inputs: ReturnType<typeof lo
   }
 }
 
-/** Inference with the layers exposed, pooled to per-unit values as the scan does, but nothing stored. */
-async function captureOnly(modelPath: string, inputs: ReturnType<typeof loadInputs>, batch: number): Promise<number> {
-  const info = readModel(modelPath);
-  const selected = selectLayers(info);
-  const names = selected.map((t) => t.name);
-  const session = await createSession(exposeTensors(fs.readFileSync(modelPath), names));
+/**
+ * The scan's own graph (every default layer exposed and pooled inside the graph, core/model/pool-graph.ts) run over
+ * the probes with nothing copied, transposed or stored: the inference half of the physical limit.
+ */
+async function prepareExposed(modelPath: string, inputs: ReturnType<typeof loadInputs>): Promise<{ bytes: Uint8Array; fetch: string[] }> {
+  const selected = selectLayers(readModel(modelPath));
+  const original = fs.readFileSync(modelPath);
+  const probe = await createSession(exposeTensors(original, selected.map((t) => t.name)));
   try {
-    const per = inputs.rowShape.reduce((a, b) => a * b, 1);
+    const out = await probe.run(feedRows(inputs, 0, 1), selected.map((t) => t.name));
+    const plans = selected.map((t) => {
+      const dims = out[t.name].dims.slice(1).map(Number);
+      return { name: t.name, kind: unitLayout(dims).kind, dims, pool: 'max' as const };
+    });
+    const pooled = exposePooled(original, plans);
+    return { bytes: pooled.bytes, fetch: [...pooled.outputs.values()].flatMap((o) => (o.argmax ? [o.values, o.argmax] : [o.values])) };
+  } finally {
+    await probe.release();
+  }
+}
+
+async function exposedOnly(exposed: { bytes: Uint8Array; fetch: string[] }, inputs: ReturnType<typeof loadInputs>, batch: number): Promise<number> {
+  const session = await createSession(exposed.bytes);
+  try {
     let checksum = 0;
     for (let off = 0; off < inputs.count; off += batch) {
       const count = Math.min(batch, inputs.count - off);
-      const x = new ort.Tensor('float32', inputs.rows.subarray(off * per, (off + count) * per), [count, ...inputs.rowShape]);
-      const out = await session.run({ x }, names);
-      for (const n of names) {
-        const dims = out[n].dims.slice(1).map(Number);
-        const layout = unitLayout(dims);
-        const pooled = poolBatch(out[n].data as Float32Array, count, layout.kind, dims, 'max');
-        checksum += pooled.values[0];
-      }
+      const out = await session.run(feedRows(inputs, off, count), exposed.fetch);
+      checksum += (out[exposed.fetch[0]].data as Float32Array)[0];
     }
     return checksum;
   } finally {
     await session.release();
   }
-}
-
-interface GraphPooled {
-  pooled: ReturnType<typeof exposePooled>;
-  convs: Map<string, number>;
-  units: Map<string, number>;
-  /** The first batches as core/extract/pool.ts pools the full maps. */
-  expected: Map<string, { values: Float32Array; argmax: Uint32Array | null }>[];
 }
 
 function feedRows(inputs: ReturnType<typeof loadInputs>, off: number, count: number) {
@@ -113,142 +110,21 @@ function feedRows(inputs: ReturnType<typeof loadInputs>, off: number, count: num
   return { x: new ort.Tensor('float32', inputs.rows.subarray(off * per, (off + count) * per), [count, ...inputs.rowShape]) };
 }
 
-/** Builds the graph-pooled model and the reference values of its first batches (not timed). */
-async function prepareGraphPooled(modelPath: string, inputs: ReturnType<typeof loadInputs>, batch: number, checkBatches: number): Promise<GraphPooled> {
-  const selected = selectLayers(readModel(modelPath));
-  const original = fs.readFileSync(modelPath);
-  const session = await createSession(exposeTensors(original, selected.map((t) => t.name)));
-  const convs = new Map<string, number>();
-  const units = new Map<string, number>();
-  const dense: string[] = [];
-  const expected: GraphPooled['expected'] = [];
+/** The disk's sequential write rate: `bytes` written in 1 MiB blocks and fsynced once (bytes per second). */
+function diskWriteRate(dir: string, bytes: number): number {
+  const file = path.join(dir, 'disk-rate.bin');
+  const block = Buffer.alloc(1 << 20, 7);
+  const start = process.hrtime.bigint();
+  const fd = fs.openSync(file, 'w');
   try {
-    for (let b = 0; b < checkBatches && b * batch < inputs.count; b++) {
-      const count = Math.min(batch, inputs.count - b * batch);
-      const out = await session.run(feedRows(inputs, b * batch, count), selected.map((t) => t.name));
-      const m = new Map<string, { values: Float32Array; argmax: Uint32Array | null }>();
-      for (const t of selected) {
-        const dims = out[t.name].dims.slice(1).map(Number);
-        const layout = unitLayout(dims);
-        if (b === 0) {
-          units.set(t.name, layout.units);
-          if (layout.kind === 'conv') convs.set(t.name, dims[0]);
-          else dense.push(t.name);
-        }
-        m.set(t.name, poolBatch(out[t.name].data as Float32Array, count, layout.kind, dims, 'max'));
-      }
-      expected.push(m);
-    }
+    for (let done = 0; done < bytes; done += block.length) fs.writeSync(fd, block, 0, Math.min(block.length, bytes - done));
+    fs.fsyncSync(fd);
   } finally {
-    await session.release();
+    fs.closeSync(fd);
   }
-  return { pooled: exposePooled(original, convs, dense), convs, units, expected };
-}
-
-/**
- * Capture with conv maps pooled inside the graph: onnxruntime returns [B, C] values and locations, turned
- * unit-major as the scan stores them. The first batches are compared with core/extract/pool.ts on the full maps:
- * the numbers must not change.
- */
-async function captureGraphPooled(g: GraphPooled, inputs: ReturnType<typeof loadInputs>, batch: number): Promise<number> {
-  const names = [...g.pooled.outputs.values()].flatMap((o) => (o.argmax ? [o.values, o.argmax] : [o.values]));
-  const session = await createSession(g.pooled.bytes);
-  try {
-    let checksum = 0;
-    for (let off = 0, b = 0; off < inputs.count; off += batch, b++) {
-      const count = Math.min(batch, inputs.count - off);
-      const out = await session.run(feedRows(inputs, off, count), names);
-      for (const [name, o] of g.pooled.outputs) {
-        const units = g.units.get(name)!;
-        const values = poolBatch(out[o.values].data as Float32Array, count, 'dense', [units], 'max').values;
-        let argmax: Uint32Array | null = null;
-        if (o.argmax) {
-          const raw = out[o.argmax].data as BigInt64Array;
-          argmax = new Uint32Array(units * count);
-          for (let s = 0; s < count; s++) for (let u = 0; u < units; u++) argmax[u * count + s] = Number(raw[s * units + u]);
-        }
-        const want = g.expected[b]?.get(name);
-        if (want) {
-          for (let i = 0; i < values.length; i++) {
-            if (values[i] !== want.values[i] || (argmax && want.argmax && argmax[i] !== want.argmax[i])) {
-              throw new Error(`pooling in the graph changed ${name} at batch ${b}, index ${i}: ${values[i]}@${argmax?.[i]} vs ${want.values[i]}@${want.argmax?.[i]}`);
-            }
-          }
-        }
-        checksum += values[0];
-      }
-    }
-    return checksum;
-  } finally {
-    await session.release();
-  }
-}
-
-/**
- * The pipelined-scan proposal for dense layers: the scan's capture, pooling and chunk buffers on the main thread,
- * the chunk commits (same statements, same transaction per chunk, same pragmas) on a worker thread with its own
- * connection, at most two chunks in flight. onnxruntime's run blocks the main thread, so this is what lets SQLite
- * work while the next chunk is inferred.
- */
-async function pipelinedScan(modelPath: string, inputs: ReturnType<typeof loadInputs>, batch: number, study: string): Promise<number> {
-  for (const f of [study, `${study}-wal`, `${study}-shm`]) fs.rmSync(f, { force: true });
-  const selected = selectLayers(readModel(modelPath));
-  const names = selected.map((t) => t.name);
-  const session = await createSession(exposeTensors(fs.readFileSync(modelPath), names));
-  const chunkSize = DEFAULT_CHUNK;
-  try {
-    const first = await session.run(feedRows(inputs, 0, 1), names);
-    const layers = selected.map((t, i) => {
-      const dims = first[t.name].dims.slice(1).map(Number);
-      return { id: i + 1, name: t.name, dims, layout: unitLayout(dims) };
-    });
-    if (layers.some((l) => l.layout.kind !== 'dense')) throw new Error('pipelinedScan: dense layers only');
-    const db = openStudyDb(study, { create: true });
-    try {
-      bindStudy(db, { path: modelPath, fingerprint: 'bench', json: '{}' },
-        { dir: 'bench', fingerprint: 'bench', name: 'bench', count: inputs.count, labels: [], labelOffsets: new Int32Array(inputs.count + 1), labelIds: new Int32Array(0), concepts: null, examples: null, relatedness: null },
-        chunkSize);
-      for (const l of layers) l.id = insertLayer(db, { name: l.name, op: 'Relu', node: l.name, position: l.id, dims: l.dims, kind: 'dense', units: l.layout.units, pool: 'none' });
-    } finally {
-      db.close();
-    }
-    const worker = new Worker(new URL('../lib/write-worker.mjs', import.meta.url), { workerData: { study } });
-    let inFlight = 0;
-    let wake: (() => void) | null = null;
-    let failure: Error | null = null;
-    worker.on('message', (m) => { if (m !== 'closed') inFlight--; wake?.(); });
-    worker.on('error', (e) => { failure = e; wake?.(); });
-    const waitUntil = async (ok: () => boolean) => {
-      while (!ok() && !failure) await new Promise<void>((r) => { wake = r; });
-      if (failure) throw failure;
-    };
-    let checksum = 0;
-    for (let start = 0, chunk = 0; start < inputs.count; start += chunkSize, chunk++) {
-      const length = Math.min(chunkSize, inputs.count - start);
-      const buffers = layers.map((l) => ({ id: l.id, units: l.layout.units, length, values: new Float32Array(l.layout.units * length) }));
-      for (let off = 0; off < length; off += batch) {
-        const count = Math.min(batch, length - off);
-        const out = await session.run(feedRows(inputs, start + off, count), names);
-        layers.forEach((l, i) => {
-          const pooled = poolBatch(out[l.name].data as Float32Array, count, 'dense', l.dims, 'max');
-          const dst = buffers[i].values;
-          for (let u = 0; u < l.layout.units; u++) dst.set(pooled.values.subarray(u * count, (u + 1) * count), u * length + off);
-        });
-      }
-      checksum += buffers[0].values[0];
-      await waitUntil(() => inFlight < 2);
-      inFlight++;
-      worker.postMessage({ chunk, layers: buffers }, buffers.map((b) => b.values.buffer));
-    }
-    await waitUntil(() => inFlight === 0);
-    const closed = new Promise<void>((r) => worker.once('message', () => r()));
-    worker.postMessage('close');
-    await closed;
-    await worker.terminate();
-    return checksum;
-  } finally {
-    await session.release();
-  }
+  const s = Number(process.hrtime.bigint() - start) / 1e9;
+  fs.rmSync(file, { force: true });
+  return bytes / s;
 }
 
 export async function scanFigure(outDir: string, model: BenchModel, probeCount: number, reps: number, log: (s: string) => void): Promise<ScanFigure> {
@@ -266,13 +142,9 @@ export async function scanFigure(outDir: string, model: BenchModel, probeCount: 
   const rawCpu: number[] = [];
   const captureCpu: number[] = [];
   const scanCpu: number[] = [];
-  const hasConv = selectLayers(readModel(modelPath)).some((t) => (t.dims?.length ?? 0) === 4);
-  const graphPoolSeconds: number[] | null = hasConv ? [] : null;
-  const graphPoolCpu: number[] | null = hasConv ? [] : null;
-  const graphPooled = hasConv ? await prepareGraphPooled(modelPath, inputs, batch, 8) : null;
-  const pipelinedSeconds: number[] | null = hasConv ? null : [];
-  const pipelinedCpu: number[] | null = hasConv ? null : [];
-  const pipelinedStudy = path.join(outDir, `${model.name}-pipelined.study`);
+  const diskRates: number[] = [];
+  const limitSeconds: number[] = [];
+  const exposed = await prepareExposed(modelPath, inputs);
   let layers: ScanFigure['layers'] = [];
   let studyBytes = 0;
   // warm-up: one small pass so the first measured run does not pay for loading the native addon
@@ -281,30 +153,21 @@ export async function scanFigure(outDir: string, model: BenchModel, probeCount: 
     const raw = await timed(() => rawInference(model.bytes, inputs, batch, null));
     rawSeconds.push(raw.seconds);
     rawCpu.push(raw.cpuSeconds);
-    const capture = await timed(() => captureOnly(modelPath, inputs, batch));
+    const capture = await timed(() => exposedOnly(exposed, inputs, batch));
     captureSeconds.push(capture.seconds);
     captureCpu.push(capture.cpuSeconds);
     for (const f of [study, `${study}-wal`, `${study}-shm`]) fs.rmSync(f, { force: true });
     const scan = await timed(() => extract({ model: modelPath, probes: probesDir, study, batch }));
     scanSeconds.push(scan.seconds);
     scanCpu.push(scan.cpuSeconds);
-    if (pipelinedSeconds && pipelinedCpu) {
-      const p = await timed(() => pipelinedScan(modelPath, inputs, batch, pipelinedStudy));
-      pipelinedSeconds.push(p.seconds);
-      pipelinedCpu.push(p.cpuSeconds);
-    }
-    if (graphPoolSeconds && graphPoolCpu && graphPooled) {
-      const g = await timed(() => captureGraphPooled(graphPooled, inputs, batch));
-      graphPoolSeconds.push(g.seconds);
-      graphPoolCpu.push(g.cpuSeconds);
-    }
     layers = scan.value.layers;
     studyBytes = fs.statSync(study).size + (fs.existsSync(`${study}-wal`) ? fs.statSync(`${study}-wal`).size : 0);
-    log(`  ${model.name} rep ${rep + 1}/${reps}: raw ${rawSeconds[rep].toFixed(2)} s, capture ${captureSeconds[rep].toFixed(2)} s, scan ${scanSeconds[rep].toFixed(2)} s` +
-      (graphPoolSeconds ? `, capture pooled in the graph ${graphPoolSeconds[rep].toFixed(2)} s` : '') +
-      (pipelinedSeconds ? `, scan with commits on a worker ${pipelinedSeconds[rep].toFixed(2)} s` : ''));
+    diskRates.push(diskWriteRate(outDir, studyBytes));
+    limitSeconds.push(Math.max(capture.seconds, studyBytes / diskRates[rep]));
+    log(`  ${model.name} rep ${rep + 1}/${reps}: raw ${rawSeconds[rep].toFixed(2)} s, exposed ${captureSeconds[rep].toFixed(2)} s, scan ${scanSeconds[rep].toFixed(2)} s, ` +
+      `study ${(studyBytes / 1e6).toFixed(1)} MB at ${(diskRates[rep] / 1e6).toFixed(0)} MB/s → limit ${limitSeconds[rep].toFixed(2)} s`);
   }
-  for (const f of [study, pipelinedStudy].flatMap((x) => [x, `${x}-wal`, `${x}-shm`])) fs.rmSync(f, { force: true });
+  for (const f of [study, `${study}-wal`, `${study}-shm`]) fs.rmSync(f, { force: true });
   const units = layers.reduce((s, l) => s + l.units, 0);
   const rawRate = probeCount / median(rawSeconds);
   const captureRate = probeCount / median(captureSeconds);
@@ -313,11 +176,7 @@ export async function scanFigure(outDir: string, model: BenchModel, probeCount: 
     model: model.name, description: model.description, probes: probeCount, batch, layers, units,
     activationBytes: units * probeCount * 4, rawSeconds, captureSeconds, scanSeconds, rawCpu, captureCpu, scanCpu,
     rawRate, captureRate, scanRate, ratio: scanRate / rawRate, captureRatio: captureRate / rawRate, studyBytes,
-    graphPoolSeconds, graphPoolCpu,
-    graphPoolRate: graphPoolSeconds ? probeCount / median(graphPoolSeconds) : null,
-    graphPoolRatio: graphPoolSeconds ? probeCount / median(graphPoolSeconds) / rawRate : null,
-    pipelinedSeconds, pipelinedCpu,
-    pipelinedRate: pipelinedSeconds ? probeCount / median(pipelinedSeconds) : null,
-    pipelinedRatio: pipelinedSeconds ? probeCount / median(pipelinedSeconds) / rawRate : null,
+    diskRates, limitSeconds, mbPerMillion: studyBytes / 1e6 / ((units * probeCount) / 1e6),
+    limitRatio: median(scanSeconds.map((x, i) => x / limitSeconds[i])),
   };
 }

@@ -8,6 +8,7 @@ import type { ApiContext } from './context.ts';
 import type { ablationRequests } from './requests/ablation.ts';
 import { SkeinError, isSkeinError, type ErrorInfo } from '../errors.ts';
 import { openStudyDb, withStudyDb } from '../store/study.ts';
+import { withStudyLock } from '../store/lock.ts';
 import { readBinding, findLayer } from '../store/binding.ts';
 import { hasScores } from '../store/scores.ts';
 import { rankRows } from './screens/read-models.ts';
@@ -62,6 +63,10 @@ function unitView(db: Parameters<typeof rankRows>[0], file: string, layer: strin
 
 /** Bulk ablation of a layer in this process (the CLI's --all; the API's job runs the same). */
 export async function runAblateLayer(r: Req<'ablate.start'>, hooks: AblateHooks, ctx: ApiContext = {}): Promise<LayerSummary> {
+  return withStudyLock(r.study, 'removal-cost run', () => ablateLayerLocked(r, hooks, ctx));
+}
+
+async function ablateLayerLocked(r: Req<'ablate.start'>, hooks: AblateHooks, ctx: ApiContext): Promise<LayerSummary> {
   const db = openStudyDb(r.study, { nativeBinding: ctx.nativeBinding });
   try {
     const study = readBinding(db);

@@ -10,6 +10,7 @@ import { openStudyDb, withStudyDb } from '../store/study.ts';
 import { requireBinding, readLayers, findLayer, labelNames } from '../store/binding.ts';
 import { readLayerChunk } from '../store/activations.ts';
 import { hasScores } from '../store/scores.ts';
+import { lockStudy, withStudyLock } from '../store/lock.ts';
 import { writeFileDurably } from '../fs/index.ts';
 import { rankRows, unitDetail } from './screens/read-models.ts';
 import { createScreenApi } from './screens/index.ts';
@@ -41,8 +42,12 @@ export function toErrorInfo(e: unknown): ErrorInfo {
   return { code: 'io', message: `Unexpected failure: ${(e as Error)?.message ?? String(e)}. Please report it with the steps that led here.` };
 }
 
-/** Runs extraction then scoring. Used directly by the CLI and through jobs by the screens. */
+/** Runs extraction then scoring, holding the study's writer lock. Used directly by the CLI and through jobs by the screens. */
 export async function runScan(req: Request<'scan.start'>, hooks: ScanHooks = {}, ctx: ApiContext = {}): Promise<ScanResult> {
+  return withStudyLock(req.study, 'scan', () => scanLocked(req, hooks, ctx));
+}
+
+async function scanLocked(req: Request<'scan.start'>, hooks: ScanHooks, ctx: ApiContext): Promise<ScanResult> {
   const ex = await extract(req, { ...hooks, nativeBinding: ctx.nativeBinding });
   const db = openStudyDb(req.study, { nativeBinding: ctx.nativeBinding });
   try {
@@ -77,11 +82,14 @@ export function createApi(ctx: ApiContext = {}) {
     },
 
     'scan.start': async (r: Request<'scan.start'>): Promise<{ job: string }> => {
+      // One writer per study: a second scan is refused here, naming the running job.
+      const lock = lockStudy(r.study, 'scan');
       const id = crypto.randomUUID();
       const abort = new AbortController();
       const state: JobState = { job: id, state: 'running', progress: null, notes: [], error: null, result: null };
       jobs.set(id, { state, abort });
-      runScan(r, { signal: abort.signal, onProgress: (p) => { state.progress = p; }, onNote: (m) => state.notes.push(m) }, ctx)
+      scanLocked(r, { signal: abort.signal, onProgress: (p) => { state.progress = p; }, onNote: (m) => state.notes.push(m) }, ctx)
+        .finally(() => lock.release())
         .then((result) => { state.result = result; state.state = 'done'; })
         .catch((e) => { state.error = toErrorInfo(e); state.state = isSkeinError(e) && e.code === 'cancelled' ? 'cancelled' : 'failed'; });
       return { job: id };

@@ -11,6 +11,7 @@ import { stringify } from 'csv-stringify/sync';
 import { SkeinError, isSkeinError, type ErrorInfo } from '../errors.ts';
 import type { ProgressReport } from '../extract/progress.ts';
 import { openStudyDb, withStudyDb } from '../store/study.ts';
+import { lockStudy } from '../store/lock.ts';
 import { findLayer } from '../store/binding.ts';
 import { writeFileDurably } from '../fs/index.ts';
 import { writeNpyFloat32 } from '../probes/index.ts';
@@ -86,15 +87,22 @@ export function createLensApi(ctx: ApiContext) {
     'lens.start': async (r: Req<'lens.start'>): Promise<{ job: string }> => {
       // Fail fast on a bad study or layer, before a job exists.
       withStudy(r.study, (db) => findLayer(db, r.layer, r.study));
+      const lock = lockStudy(r.study, 'lens');
       const id = crypto.randomUUID();
       const abort = new AbortController();
       const state: LensJobState = { job: id, state: 'running', progress: null, error: null, result: null };
       jobs.set(id, { state, abort });
-      const db = openStudyDb(r.study, { nativeBinding: ctx.nativeBinding });
+      let db: ReturnType<typeof openStudyDb>;
+      try {
+        db = openStudyDb(r.study, { nativeBinding: ctx.nativeBinding });
+      } catch (e) {
+        lock.release();
+        throw e;
+      }
       layerLens(db, r.layer, {}, { signal: abort.signal, onProgress: (p) => { state.progress = p; } }, r.study)
         .then((out) => { state.result = out.result; state.state = 'done'; })
         .catch((e) => { state.error = isSkeinError(e) ? e.toJSON() : { code: 'io', message: `Unexpected failure: ${(e as Error)?.message ?? String(e)}.` }; state.state = isSkeinError(e) && e.code === 'cancelled' ? 'cancelled' : 'failed'; })
-        .finally(() => db.close());
+        .finally(() => { db.close(); lock.release(); });
       return { job: id };
     },
 

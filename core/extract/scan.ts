@@ -58,35 +58,44 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
   for (const w of probes.warnings) note(w);
   const selected = selectLayers(info, req.layers);
 
-  const db = openStudyDb(req.study, { create: true, nativeBinding: hooks.nativeBinding });
+  // Validate everything (the model loads and runs on one probe, the probe set opens) before the study is touched:
+  // a model onnxruntime refuses must not discard what the study already holds.
+  const modelBytes = fs.readFileSync(info.path);
+  let session = await createSession(exposeTensors(modelBytes, selected.map((t) => t.name), { modelPath: info.path }), { intraOpThreads: req.threads }, info.path);
+  const studyPath = path.resolve(req.study);
+  const isNew = !fs.existsSync(studyPath);
+  let db: Database.Database | null = null;
+  let chunksWritten = 0;
   try {
-    const chunkSize = bindToStudy(db, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
+    const fixed = fixedBatch(info.inputs.filter((i) => probes.inputs.some((s) => s.name === i.name) || i.name in probes.fill));
+    const batch = fixed ?? Math.max(1, Math.floor(req.batch ?? DEFAULT_BATCH));
+    if (fixed !== null && req.batch !== undefined && req.batch !== fixed) {
+      note(`The model's batch dimension is fixed at ${fixed}; using batch ${fixed} instead of ${req.batch}.`);
+    }
+    const feeder = new Feeder(info, probes, fillShapes, fixed);
+    const dims = await dryRunShapes(info, session, feeder.feeds(0, 1));
+    const shapes = new Map(selected.map((t) => [t.name, dims[t.name].slice(1)]));
 
-    const modelBytes = fs.readFileSync(info.path);
-    let session = await createSession(exposeTensors(modelBytes, selected.map((t) => t.name), { modelPath: info.path }), { intraOpThreads: req.threads }, info.path);
-    try {
-      const fixed = fixedBatch(info.inputs.filter((i) => probes.inputs.some((s) => s.name === i.name) || i.name in probes.fill));
-      const batch = fixed ?? Math.max(1, Math.floor(req.batch ?? DEFAULT_BATCH));
-      if (fixed !== null && req.batch !== undefined && req.batch !== fixed) {
-        note(`The model's batch dimension is fixed at ${fixed}; using batch ${fixed} instead of ${req.batch}.`);
-      }
-      const feeder = new Feeder(info, probes, fillShapes, fixed);
-      const dims = await dryRunShapes(info, session, feeder.feeds(0, 1));
-      const shapes = new Map(selected.map((t) => [t.name, dims[t.name].slice(1)]));
-      const layers = upsertLayers(db, selected, shapes, req.pool ?? 'max', note);
-      // Pool inside the graph (core/model/pool-graph.ts): onnxruntime returns per-unit values, not whole maps.
-      let pooledOutputs: Map<string, PooledOutputs> | null = null;
-      if (canPoolInGraph(info.opsetVersion)) {
-        const plans = layers.map((l) => ({ name: l.name, kind: l.kind, dims: l.dims, pool: (l.pool === 'none' ? 'max' : l.pool) as Pool }));
-        const pooled = exposePooled(modelBytes, plans, { modelPath: info.path });
-        await session.release();
-        session = await createSession(pooled.bytes, { intraOpThreads: req.threads }, info.path);
-        pooledOutputs = pooled.outputs;
-      }
-
+    const opened = openStudyDb(req.study, { create: true, nativeBinding: hooks.nativeBinding });
+    db = opened;
+    // Stale data is discarded in the transaction that binds the study to the new scan and records its layers.
+    const { chunkSize, layers } = opened.transaction(() => {
+      const size = bindToStudy(opened, info, probes, req.chunkSize ?? DEFAULT_CHUNK, note);
+      return { chunkSize: size, layers: upsertLayers(opened, selected, shapes, req.pool ?? 'max', note) };
+    })();
+    // Pool inside the graph (core/model/pool-graph.ts): onnxruntime returns per-unit values, not whole maps.
+    let pooledOutputs: Map<string, PooledOutputs> | null = null;
+    if (canPoolInGraph(info.opsetVersion)) {
+      const plans = layers.map((l) => ({ name: l.name, kind: l.kind, dims: l.dims, pool: (l.pool === 'none' ? 'max' : l.pool) as Pool }));
+      const pooled = exposePooled(modelBytes, plans, { modelPath: info.path });
+      await session.release();
+      session = await createSession(pooled.bytes, { intraOpThreads: req.threads }, info.path);
+      pooledOutputs = pooled.outputs;
+    }
+    {
       const chunks = Math.ceil(probes.count / chunkSize);
       const pending: { chunk: number; layers: LayerRow[] }[] = [];
-      const done = new Map(layers.map((l) => [l.id, doneChunks(db, l.id)]));
+      const done = new Map(layers.map((l) => [l.id, doneChunks(opened, l.id)]));
       let reused = 0;
       for (let c = 0; c < chunks; c++) {
         const missing = layers.filter((l) => !done.get(l.id)!.has(c));
@@ -138,7 +147,8 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
         }
         throwIfAborted(hooks.signal);
         // One transaction per chunk: a kill leaves whole chunks only, so resume never mixes partial work in.
-        writeChunk(db, chunk, length, buffers.map((b) => ({ layerId: b.layer.id, units: b.layer.units, values: b.values, argmax: b.argmax })));
+        writeChunk(opened, chunk, length, buffers.map((b) => ({ layerId: b.layer.id, units: b.layer.units, values: b.values, argmax: b.argmax })));
+        chunksWritten++;
       }
       progress.finish();
       return {
@@ -150,11 +160,18 @@ export async function extract(req: ScanRequest, hooks: ScanHooks = {}): Promise<
         resumed,
         seconds: (Date.now() - started) / 1000,
       };
-    } finally {
-      await session.release();
     }
+  } catch (e) {
+    // A scan that fails before its first chunk leaves no new study file behind.
+    if (isNew && chunksWritten === 0) {
+      db?.close();
+      db = null;
+      for (const f of [studyPath, `${studyPath}-wal`, `${studyPath}-shm`, `${studyPath}-journal`]) fs.rmSync(f, { force: true });
+    }
+    throw e;
   } finally {
-    db.close();
+    db?.close();
+    await session.release();
   }
 }
 

@@ -19,7 +19,7 @@ import { crossValidatedProbes, defaultProbeOptions, foldsOf, type ProbeOptions }
 import { clusterOrder, cosineMatrix, featureDimensionality, participationRatio, projectDirections, rowNorm, totalInterference } from './stats.ts';
 
 /** Bump when a formula or the result's shape changes: cached results under another version are recomputed. */
-export const LENS_VERSION = 1;
+export const LENS_VERSION = 3;
 
 export const CAUTION = 'These figures are hypotheses about the model on this probe set, not proof: a concept the probes miss may still be there nonlinearly, and one they find may be a correlate of the label. Check the units before pruning or trusting them.';
 
@@ -115,14 +115,17 @@ function pairText(a: string, b: string, c: number): string {
 
 /** The layer summary in words (the issue's sentence form). */
 export function summarise(r: Pick<LensResult, 'units' | 'effectiveDimensions' | 'decodableCount' | 'conceptsPerDimension' | 'concepts' | 'mostInterfering' | 'dimensionalitySum'>): string {
-  const local = r.concepts.filter((c) => c.locality === 'local').length;
-  const spread = r.concepts.filter((c) => c.locality === 'spread').length;
-  const carried = r.concepts.filter((c) => c.carried).length;
+  const plain = r.concepts.filter((c) => c.kind === 'label');
+  const local = plain.filter((c) => c.locality === 'local').length;
+  const spread = plain.filter((c) => c.locality === 'spread').length;
+  const carried = plain.filter((c) => c.carried).length;
   const parts = [
     `${r.units} unit${r.units === 1 ? '' : 's'}, about ${r.effectiveDimensions.toFixed(1)} effective dimensions, ${r.decodableCount} decodable concept${r.decodableCount === 1 ? '' : 's'}: ${r.conceptsPerDimension.toFixed(1)} per dimension.`,
     `${local} ${local === 1 ? 'is' : 'are'} local to one unit, ${spread} spread over 4 or more units (of ${carried} carried linearly).`,
     `Feature dimensionality sums to ${r.dimensionalitySum.toFixed(1)} over ${r.units} unit${r.units === 1 ? '' : 's'}.`,
   ];
+  const compounds = r.concepts.filter((c) => c.kind === 'compound');
+  if (compounds.length) parts.push(`Counted over labels; ${compounds.filter((c) => c.decodable).length} of ${compounds.length} compound drivers are decodable too.`);
   if (r.mostInterfering) parts.push(`Most interfering pair: ${pairText(r.mostInterfering.a, r.mostInterfering.b, r.mostInterfering.cosine)}.`);
   return parts.join(' ');
 }
@@ -286,8 +289,20 @@ export async function computeLens(db: Database.Database, layerName: string, opti
       progress.advance(1);
     }
 
-    const dimensionality = featureDimensionality(dirs, T, m);
-    const interference = totalInterference(dirs, T, m);
+    // D and interference over the labels (the features of the formula); a compound, being made of labels, is
+    // measured against the labels and itself only, so it does not lower the labels' own figures.
+    const L = labels.labels.length;
+    const dimensionality = new Float64Array(T);
+    const interference = new Float64Array(T);
+    dimensionality.set(featureDimensionality(dirs.subarray(0, L * m), L, m));
+    interference.set(totalInterference(dirs.subarray(0, L * m), L, m));
+    for (let t = L; t < T; t++) {
+      const withOne = new Float64Array((L + 1) * m);
+      withOne.set(dirs.subarray(0, L * m));
+      withOne.set(dirs.subarray(t * m, (t + 1) * m), L * m);
+      dimensionality[t] = featureDimensionality(withOne, L + 1, m)[L];
+      interference[t] = totalInterference(withOne, L + 1, m)[L];
+    }
     const concepts: LensConcept[] = names.map((name, t) => {
       const norm = rowNorm(dirs, m, t);
       let k95: number | null = null;
@@ -317,17 +332,18 @@ export async function computeLens(db: Database.Database, layerName: string, opti
     for (let i = 0; i < carriedIdx.length; i++) {
       for (let j = i + 1; j < carriedIdx.length; j++) {
         const c = cos[i * carriedIdx.length + j];
+        if (carriedIdx[i] >= L || carriedIdx[j] >= L) continue; // pairs of labels: a compound overlaps its own parts by construction
         if (!mostInterfering || Math.abs(c) > Math.abs(mostInterfering.cosine)) mostInterfering = { a: names[carriedIdx[i]], b: names[carriedIdx[j]], cosine: c };
       }
     }
     const orderedDirs = new Float64Array(carriedIdx.length * m);
     carriedOrder.forEach((t, i) => orderedDirs.set(dirs.subarray(t * m, (t + 1) * m), i * m));
     const proj = projectDirections(orderedDirs, carriedOrder.length, m, mulberry32(opts.seed));
-    const decodableCount = concepts.filter((c) => c.decodable).length;
+    const decodableCount = concepts.filter((c) => c.decodable && c.kind === 'label').length;
     const partial = {
       units: m, effectiveDimensions, decodableCount,
       conceptsPerDimension: effectiveDimensions > 0 ? decodableCount / effectiveDimensions : 0,
-      dimensionalitySum: carriedIdx.reduce((s, t) => s + dimensionality[t], 0), concepts, mostInterfering,
+      dimensionalitySum: carriedIdx.filter((t) => t < L).reduce((s, t) => s + dimensionality[t], 0), concepts, mostInterfering,
     };
     const result: LensResult = {
       version: LENS_VERSION, layer: layer.name, probes: N, probesFitted: fitCount, folds: opts.folds, seed: opts.seed, l2: opts.l2,

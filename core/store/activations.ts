@@ -1,11 +1,12 @@
 /**
- * The activations repository: one row per (layer, unit, chunk) of float32 values in probe order, with the argmax
- * locations of conv and sequence units, and `chunk_done`, the record of which chunks are complete. The only code that
+ * The activations repository: one row per (layer, unit, chunk) of float32 values in probe order (stored in the
+ * smaller lossless layout of core/store/codec.ts, named by `enc`), with the argmax locations of conv and sequence units, and `chunk_done`, the record of which chunks are complete. The only code that
  * reads or writes those tables. Layout and its costs: core/store/schema.ts.
  */
 import type Database from 'better-sqlite3';
 import { SkeinError } from '../errors.ts';
-import { blobToFloats, blobToUint32, floatsToBlob, now } from './study.ts';
+import { blobToUint32, now } from './study.ts';
+import { decodeFloats, decodeFloatsInto, encodeFloats } from './codec.ts';
 import type { StudyBinding } from './binding.ts';
 
 /** Chunks already committed for a layer. */
@@ -27,15 +28,28 @@ export interface ChunkBlock {
  * chunks only, so a resume never mixes partial work in.
  */
 export function writeChunk(db: Database.Database, chunk: number, length: number, blocks: ChunkBlock[]): void {
-  const insertAct = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, argmax) VALUES (?, ?, ?, ?, ?)`);
+  const insertAct = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, enc, argmax) VALUES (?, ?, ?, ?, ?, ?)`);
   const insertDone = db.prepare(`INSERT OR REPLACE INTO chunk_done (layer_id, chunk) VALUES (?, ?)`);
   const touch = db.prepare(`UPDATE run SET updated_at = ? WHERE id = 1`);
+  // Activations are a cache a rerun recomputes: their commits skip the fsync (WAL + NORMAL still never corrupts; a
+  // power cut may drop the last chunks, which resume redoes). Everything else on the connection stays FULL.
+  const previous = db.pragma('synchronous', { simple: true }) as number;
+  db.pragma('synchronous = NORMAL');
+  try {
+    writeChunkRows(db, insertAct, insertDone, touch, chunk, length, blocks);
+  } finally {
+    db.pragma(`synchronous = ${previous}`);
+  }
+}
+
+function writeChunkRows(db: Database.Database, insertAct: Database.Statement, insertDone: Database.Statement, touch: Database.Statement, chunk: number, length: number, blocks: ChunkBlock[]): void {
   db.transaction(() => {
     for (const b of blocks) {
       for (let u = 0; u < b.units; u++) {
         const vals = b.values.subarray(u * length, (u + 1) * length);
         const am = b.argmax ? b.argmax.subarray(u * length, (u + 1) * length) : null;
-        insertAct.run(b.layerId, u, chunk, floatsToBlob(vals), am ? Buffer.from(am.buffer, am.byteOffset, am.byteLength) : null);
+        const e = encodeFloats(vals);
+        insertAct.run(b.layerId, u, chunk, e.blob, e.enc, am ? Buffer.from(am.buffer, am.byteOffset, am.byteLength) : null);
       }
       insertDone.run(b.layerId, chunk);
     }
@@ -48,8 +62,11 @@ export function writeChunk(db: Database.Database, chunk: number, length: number,
  * scan). Call markChunksDone once every unit of the layer is written.
  */
 export function writeUnitChunks(db: Database.Database, layerId: number, unit: number, chunkSize: number, values: Float32Array): void {
-  const ins = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, argmax) VALUES (?, ?, ?, ?, NULL)`);
-  for (let c = 0; c * chunkSize < values.length; c++) ins.run(layerId, unit, c, floatsToBlob(values.subarray(c * chunkSize, Math.min(values.length, (c + 1) * chunkSize))));
+  const ins = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, enc, argmax) VALUES (?, ?, ?, ?, ?, NULL)`);
+  for (let c = 0; c * chunkSize < values.length; c++) {
+    const e = encodeFloats(values.subarray(c * chunkSize, Math.min(values.length, (c + 1) * chunkSize)));
+    ins.run(layerId, unit, c, e.blob, e.enc);
+  }
 }
 
 /** Records chunks of a layer as complete. */
@@ -62,14 +79,9 @@ export function markChunksDone(db: Database.Database, layerId: number, chunks: n
 export function readUnit(db: Database.Database, binding: StudyBinding, layerId: number, unit: number, out?: Float32Array): Float32Array {
   const n = binding.probeCount;
   const values = out ?? new Float32Array(n);
-  const rows = db.prepare(`SELECT chunk, vals FROM activation WHERE layer_id = ? AND unit = ? ORDER BY chunk`).raw().iterate(layerId, unit) as IterableIterator<[number, Buffer]>;
+  const rows = db.prepare(`SELECT chunk, vals, enc FROM activation WHERE layer_id = ? AND unit = ? ORDER BY chunk`).raw().iterate(layerId, unit) as IterableIterator<[number, Buffer, number]>;
   let seen = 0;
-  for (const [chunk, vals] of rows) {
-    const start = chunk * binding.chunkSize;
-    const bytes = new Uint8Array(values.buffer, values.byteOffset + start * 4, vals.byteLength);
-    bytes.set(vals);
-    seen += vals.byteLength / 4;
-  }
+  for (const [chunk, vals, enc] of rows) seen += decodeFloatsInto(enc, vals, values, chunk * binding.chunkSize);
   if (seen !== n) {
     throw new SkeinError({ code: 'study', where: `layer ${layerId} unit ${unit}`, message: `The scan of this layer is incomplete (${seen} of ${n} probes). Rerun the scan to finish it.` });
   }
@@ -78,7 +90,7 @@ export function readUnit(db: Database.Database, binding: StudyBinding, layerId: 
 
 /** Every unit's values for one chunk of probes, in unit order (the probe-major export reads a layer this way). */
 export function readLayerChunk(db: Database.Database, layerId: number, chunk: number): Float32Array[] {
-  return (db.prepare(`SELECT vals FROM activation WHERE layer_id = ? AND chunk = ? ORDER BY unit`).pluck().all(layerId, chunk) as Buffer[]).map(blobToFloats);
+  return (db.prepare(`SELECT vals, enc FROM activation WHERE layer_id = ? AND chunk = ? ORDER BY unit`).raw().all(layerId, chunk) as [Buffer, number][]).map(([vals, enc]) => decodeFloats(enc, vals));
 }
 
 /**
@@ -88,9 +100,9 @@ export function readLayerChunk(db: Database.Database, layerId: number, chunk: nu
 export function* readChunkSample(db: Database.Database, layerId: number, chunks: number[], unit?: number): Generator<{ unit: number; chunk: number; values: Float32Array }> {
   const placeholders = chunks.map(() => '?').join(',');
   const rows = unit === undefined
-    ? db.prepare(`SELECT unit, chunk, vals FROM activation WHERE layer_id = ? AND chunk IN (${placeholders}) ORDER BY unit, chunk`).raw().iterate(layerId, ...chunks)
-    : db.prepare(`SELECT unit, chunk, vals FROM activation WHERE layer_id = ? AND unit = ? AND chunk IN (${placeholders}) ORDER BY chunk`).raw().iterate(layerId, unit, ...chunks);
-  for (const [u, c, vals] of rows as IterableIterator<[number, number, Buffer]>) yield { unit: u, chunk: c, values: blobToFloats(vals) };
+    ? db.prepare(`SELECT unit, chunk, vals, enc FROM activation WHERE layer_id = ? AND chunk IN (${placeholders}) ORDER BY unit, chunk`).raw().iterate(layerId, ...chunks)
+    : db.prepare(`SELECT unit, chunk, vals, enc FROM activation WHERE layer_id = ? AND unit = ? AND chunk IN (${placeholders}) ORDER BY chunk`).raw().iterate(layerId, unit, ...chunks);
+  for (const [u, c, vals, enc] of rows as IterableIterator<[number, number, Buffer, number]>) yield { unit: u, chunk: c, values: decodeFloats(enc, vals) };
 }
 
 /** Argmax locations of one unit (conv/sequence layers), or null when the layer keeps none. */

@@ -206,6 +206,11 @@ export const migrations: string[] = [
   );
   DELETE FROM score_run;
   `,
+  // 6 → 7: activation blobs may be stored in a smaller lossless layout; `enc` names it (core/store/codec.ts:
+  // 0 plain float32, 1 zero mask + the non-zero float32s). Rows written before keep 0.
+  `
+  ALTER TABLE activation ADD COLUMN enc INTEGER NOT NULL DEFAULT 0;
+  `,
 ];
 
 export const SCHEMA_VERSION = migrations.length;

@@ -126,3 +126,8 @@ export function blobToInt32(b: Buffer): Int32Array {
   new Uint8Array(out.buffer).set(b);
   return out;
 }
+
+/** The connection's synchronous level (0 OFF, 1 NORMAL, 2 FULL): what an acknowledged commit survives. */
+export function syncLevel(db: Database.Database): number {
+  return db.pragma('synchronous', { simple: true }) as number;
+}

@@ -56,6 +56,16 @@ describe('skein lens', () => {
     const wide = JSON.parse(skein('lens', study, '--layer', 'relu_wide', '--json').stdout) as LensResult;
     const meanDim = (l: LensResult) => l.concepts.filter((c) => c.carried).reduce((s, c) => s + c.dimensionality, 0) / l.concepts.filter((c) => c.carried).length;
     expect(meanDim(wide)).toBeGreaterThan(meanDim(lens));
+    // Compound drivers of the joint driver model join as concepts of their own; the headline counts stay over labels.
+    const compounds = wide.concepts.filter((c) => c.kind === 'compound');
+    expect(compounds.length).toBeGreaterThan(0);
+    for (const c of compounds) {
+      const parts = c.name.split(' & ').map((n) => wide.concepts.find((x) => x.name === n && x.kind === 'label')!);
+      expect(parts.length).toBeGreaterThanOrEqual(2);
+      expect(c.positives).toBeLessThanOrEqual(Math.min(...parts.map((p) => p.positives)));
+    }
+    expect(wide.decodableCount).toBeLessThanOrEqual(12);
+    expect(wide.summary).toMatch(/compound drivers are decodable too/);
   });
 
   it('reuses the cached result and says so', () => {

@@ -77,7 +77,7 @@ describe('helpers', () => {
     for (let i = 0; i < 5; i++) expect(Math.hypot(p.xy[2 * i], p.xy[2 * i + 1])).toBeCloseTo(2, 9);
   });
   it('summary sentence reads as the issue asks', () => {
-    const concept = (locality: 'local' | 'spread' | 'few') => ({ locality, carried: true });
+    const concept = (locality: 'local' | 'spread' | 'few') => ({ locality, carried: true, kind: 'label' });
     const s = summarise({
       units: 32, effectiveDimensions: 11.2, decodableCount: 18, conceptsPerDimension: 18 / 11.2, dimensionalitySum: 9.5,
       concepts: [...Array(6).fill(concept('local')), ...Array(9).fill(concept('spread'))], mostInterfering: { a: 'red', b: 'round', cosine: 0.71 },
