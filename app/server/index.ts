@@ -90,6 +90,17 @@ function readBody(req: http.IncomingMessage, maxBytes: number): Promise<Buffer |
   });
 }
 
+/** A refused body is read and dropped (so the client, still sending, reads the answer) up to a cap, then cut. */
+const DRAIN_LIMIT = 1 << 30;
+function drain(req: http.IncomingMessage, limit: number): void {
+  let seen = 0;
+  req.on('data', (chunk: Buffer) => {
+    seen += chunk.length;
+    if (seen > limit) req.destroy();
+  });
+  req.on('error', () => {});
+}
+
 export async function startServer(opts: ServerOptions): Promise<RunningServer> {
   const token = opts.token ?? crypto.randomBytes(24).toString('base64url');
   const maxBody = opts.maxBodyBytes ?? DEFAULT_MAX_BODY;
@@ -127,6 +138,13 @@ export async function startServer(opts: ServerOptions): Promise<RunningServer> {
         method = decodeURIComponent(url.pathname.slice('/api/'.length));
       } catch {
         return sendText(res, 400, 'Bad request URL.');
+      }
+      // Answer a declared oversize body at once, before reading it: the client gets the 400 instead of a reset.
+      const declared = Number(req.headers['content-length']);
+      if (Number.isFinite(declared) && declared > maxBody) {
+        sendText(res, 400, `Bad request: the body is larger than ${maxBody} bytes.`, { Connection: 'close' });
+        drain(req, DRAIN_LIMIT);
+        return;
       }
       const raw = await readBody(req, maxBody);
       if (raw === 'too-large') return sendText(res, 400, `Bad request: the body is larger than ${maxBody} bytes.`, { Connection: 'close' });

@@ -4,7 +4,7 @@
  */
 import crypto from 'node:crypto';
 import type { z } from 'zod';
-import type { ApiContext } from './context.ts';
+import { checkStoredPath, type ApiContext } from './context.ts';
 import type { ablationRequests } from './requests/ablation.ts';
 import { SkeinError, isSkeinError, type ErrorInfo } from '../errors.ts';
 import { openStudyDb, withStudyDb } from '../store/study.ts';
@@ -77,6 +77,12 @@ async function ablateLayerLocked(r: Req<'ablate.start'>, hooks: AblateHooks, ctx
   }
 }
 
+/** The model path a study stored, refused in browser mode when it lies outside the allowed folders. */
+function storedModel(modelPath: string, study: string, ctx: ApiContext): string {
+  checkStoredPath(modelPath, 'model file', study, ctx.allowedRoots);
+  return modelPath;
+}
+
 export function createAblationApi(ctx: ApiContext) {
   const jobs = new Map<string, { state: AblateJobState; abort: AbortController }>();
   const withStudy = <T>(file: string, fn: (db: ReturnType<typeof openStudyDb>) => T): T => withStudyDb(file, { nativeBinding: ctx.nativeBinding }, fn);
@@ -86,7 +92,7 @@ export function createAblationApi(ctx: ApiContext) {
     return run;
   };
   const setupOf = (r: Req<'ablate.start'>, modelPath: string) => ({
-    model: r.model ?? modelPath, layer: r.layer, mode: r.mode ?? 'zero', value: r.value, sample: r.sample, seed: r.seed,
+    model: r.model ?? storedModel(modelPath, r.study, ctx), layer: r.layer, mode: r.mode ?? 'zero', value: r.value, sample: r.sample, seed: r.seed,
   });
 
   return {
@@ -116,7 +122,7 @@ export function createAblationApi(ctx: ApiContext) {
       const abort = new AbortController();
       const state: AblateJobState = { job: id, state: 'running', layer: r.layer, progress: null, notes: [], error: null, result: null };
       jobs.set(id, { state, abort });
-      runAblateLayer({ ...r, model: r.model ?? modelPath }, { signal: abort.signal, onProgress: (p) => { state.progress = p; }, onNote: (m) => state.notes.push(m) }, ctx).then((s) => {
+      runAblateLayer({ ...r, model: r.model ?? storedModel(modelPath, r.study, ctx) }, { signal: abort.signal, onProgress: (p) => { state.progress = p; }, onNote: (m) => state.notes.push(m) }, ctx).then((s) => {
         state.result = { ...s, run: runInfo(s.run) };
         state.state = 'done';
       }).catch((e) => {

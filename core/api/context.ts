@@ -35,3 +35,12 @@ export function checkPaths(req: Record<string, unknown>, roots: string[] | undef
     if (typeof v === 'string') checkPath(v, field, roots);
   }
 }
+
+/**
+ * Refuses a path read from a study (its model file, its probe-set folder) that lies outside browser mode's allowed
+ * folders: a study inside an allowed folder must not open a door to files outside them.
+ */
+export function checkStoredPath(p: string, what: string, study: string, roots: string[] | undefined): void {
+  if (!roots || isInsideAny(p, roots)) return;
+  throw new SkeinError({ code: 'request', file: study, where: what, message: `This study's ${what} (${p}) is outside the folders Skein may use in browser mode (${roots.join(', ')}). Restart Skein naming that folder on the command line, or rescan with files inside an allowed folder.` });
+}

@@ -10,6 +10,7 @@ import { REVIEW_HELP, reviewCommand, reportCommand } from './review.ts';
 import { UsageError, parse, intOption, unitArg } from './args.ts';
 import { ABLATE_HELP, ablateCommand } from './ablate.ts';
 import { LENS_HELP, lensCommand } from './lens.ts';
+import { DICTIONARY_HELP, dictionaryCommand } from './dictionary.ts';
 
 const HELP = `skein — find the polysemantic units of an ONNX model on a labelled probe set
 
@@ -23,6 +24,7 @@ const HELP = `skein — find the polysemantic units of an ONNX model on a labell
 ${REVIEW_HELP}
 ${ABLATE_HELP}
 ${LENS_HELP}
+${DICTIONARY_HELP}
 
 Scores are statistical hypotheses about the model on this probe set, not proof: check a unit before pruning or
 trusting it.`;
@@ -180,6 +182,8 @@ export async function main(argv: string[]): Promise<number> {
         return await reportCommand(rest, api);
       case 'lens':
         return await lensCommand(rest, api);
+      case 'dictionary':
+        return await dictionaryCommand(rest);
       case 'ablate':
         return await ablateCommand(rest, api);
       case undefined:

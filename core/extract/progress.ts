@@ -1,6 +1,6 @@
 /** Progress of a long job as every screen and the CLI show it: {done, total, etaSeconds}. */
 export interface ProgressReport {
-  phase: 'extract' | 'score' | 'ablate' | 'geometry';
+  phase: 'extract' | 'score' | 'ablate' | 'geometry' | 'dictionary';
   done: number;
   total: number;
   /** null until there is enough to estimate from. */

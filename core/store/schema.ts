@@ -211,6 +211,31 @@ export const migrations: string[] = [
   `
   ALTER TABLE activation ADD COLUMN enc INTEGER NOT NULL DEFAULT 0;
   `,
+  // 7 → 8: sparse dictionaries (core/dictionary), one per layer. While training, the row is the checkpoint of the
+  // last finished epoch (weights in the normalised space, Adam moments, firing counters) that a resume starts from;
+  // once done it holds the dictionary in the layer's units and its metrics. `key` hashes everything it depends on.
+  `
+  CREATE TABLE dictionary (
+    layer_id INTEGER PRIMARY KEY REFERENCES layer(id) ON DELETE CASCADE,
+    key TEXT NOT NULL,
+    state TEXT NOT NULL CHECK (state IN ('training', 'done')),
+    epoch INTEGER NOT NULL,               -- epochs finished
+    options_json TEXT NOT NULL,           -- core/dictionary/train.ts DictionaryOptions
+    units INTEGER NOT NULL, features INTEGER NOT NULL, k INTEGER NOT NULL,
+    scale REAL NOT NULL,                  -- while training: the inputs' normalising divisor
+    w_enc BLOB NOT NULL,                  -- float32 [features × units], row-major
+    b_enc BLOB NOT NULL,                  -- float32 [features]
+    w_dec BLOB NOT NULL,                  -- float32 [features × units], unit-norm rows
+    b_dec BLOB NOT NULL,                  -- float32 [units]
+    adam_step INTEGER NOT NULL,
+    adam BLOB,                            -- float32 moments m then v of w_enc, b_enc, w_dec, b_dec; NULL once done
+    since_fired BLOB,                     -- float64 [features]: probes since each feature fired; NULL once done
+    losses_json TEXT NOT NULL,            -- mean squared error per finished epoch (normalised space)
+    metrics_json TEXT,                    -- core/dictionary/train.ts LayerMetrics without firingRate; NULL while training
+    firing_rate BLOB,                     -- float32 [features]; NULL while training
+    updated_at TEXT NOT NULL
+  );
+  `,
 ];
 
 export const SCHEMA_VERSION = migrations.length;

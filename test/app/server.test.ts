@@ -123,6 +123,14 @@ describe('request bodies', () => {
     expect(await next.json()).toEqual({ ok: true, value: [root] });
   });
 
+  it('answers a 100 MB body from its Content-Length, so the client reads the 400 (issue 10)', async () => {
+    const body = Buffer.alloc(100 << 20, 0x20);
+    const r = await fetch(`${server.origin}/api/fs.list`, { method: 'POST', headers: { 'content-type': 'application/json', 'x-skein-token': server.token }, body });
+    expect(r.status).toBe(400);
+    expect(await r.text()).toMatch(/larger than 1048576 bytes/);
+    expect((await call('fs.roots', {})).status).toBe(200);
+  });
+
   it('answers a malformed body with 400 and keeps serving', async () => {
     const r = await fetch(`${server.origin}/api/fs.roots`, { method: 'POST', headers: { 'x-skein-token': server.token }, body: '{"unclosed": ' });
     expect(r.status).toBe(400);

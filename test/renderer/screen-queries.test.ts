@@ -167,6 +167,24 @@ describe('screen requests on the planted study', () => {
     await expect(api['example.image']({ study, probe: 5 })).rejects.toMatchObject({ code: 'request', where: 'probe' });
   });
 
+  it('example.image in browser mode refuses a probe-set folder stored in the study outside the allowed folders', async () => {
+    // Issue 10: the study lies inside the allowed folder, the probe-set path it stores does not.
+    const allowed = path.join(dir, 'allowed');
+    fs.mkdirSync(allowed, { recursive: true });
+    const boxedStudy = path.join(allowed, 'copy.study');
+    fs.copyFileSync(study, boxedStudy);
+    fs.writeFileSync(path.join(dir, 'planted-probes', 'p0.png'), Buffer.from('89504e470d0a1a0a', 'hex'));
+    const db = new Database(boxedStudy);
+    db.prepare(`INSERT OR REPLACE INTO example (probe, ext_id, text, image) VALUES (0, NULL, NULL, 'p0.png')`).run();
+    db.close();
+    const ctx = { allowedRoots: [allowed] };
+    await expect(dispatch(createApi(ctx), ctx, 'example.image', { study: boxedStudy, probe: 0 })).rejects.toMatchObject({
+      code: 'request', where: 'probe-set folder', message: expect.stringContaining('outside the folders Skein may use'),
+    });
+    // Outside browser mode (no roots) the same study shows the image.
+    expect((await createApi({})['example.image']({ study: boxedStudy, probe: 0 })).mime).toBe('image/png');
+  });
+
   it('classifies with the polysemanticAt the scores were made with, stored among their options', async () => {
     const copy = path.join(dir, 'strict.study');
     fs.copyFileSync(study, copy);

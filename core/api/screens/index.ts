@@ -19,7 +19,7 @@ export function createScreenApi(ctx: ApiContext) {
     'unit.similar': async (r: Req<'unit.similar'>) => withStudy(r.study, (db) => similarUnits(db, r.layer, r.unit, { top: r.top, file: r.study })),
     'concept.units': async (r: Req<'concept.units'>) => withStudy(r.study, (db) => conceptReach(db, r.label, { top: r.top, file: r.study })),
     'layers.strata': async (r: Req<'layers.strata'>) => withStudy(r.study, (db) => layerStrata(db, r.study)),
-    'example.image': async (r: Req<'example.image'>) => withStudy(r.study, (db) => exampleImage(db, r.probe, r.study)),
+    'example.image': async (r: Req<'example.image'>) => withStudy(r.study, (db) => exampleImage(db, r.probe, r.study, ctx.allowedRoots)),
     'probes.labels': async (r: Req<'probes.labels'>) => withStudy(r.study, (db) => probeLabels(db, r.probes)),
     'unit.evidence': async ({ study, ...r }: Req<'unit.evidence'>) => withStudy(study, (db) => unitEvidence(db, r, study)),
   };

@@ -16,6 +16,7 @@ import { readAllDrivers, readLayerNulls, readUnitDrivers, type DriverRecord } fr
 import { defaultScoreOptions } from '../../score/unit.ts';
 import { UNIT_KINDS, classifyUnit, type UnitKind } from '../../score/kind.ts';
 import { readExampleImage } from '../../probes/example-image.ts';
+import { checkStoredPath } from '../context.ts';
 
 export { UNIT_KINDS, type UnitKind };
 
@@ -512,8 +513,9 @@ export function layerStrata(db: Database.Database, file?: string): LayerStrata {
 }
 
 /** The image of one probe as a data: URL, read from the probe-set folder; refuses any path leaving that folder. */
-export function exampleImage(db: Database.Database, probe: number, file?: string): { dataUrl: string; mime: string; bytes: number } {
+export function exampleImage(db: Database.Database, probe: number, file?: string, roots?: string[]): { dataUrl: string; mime: string; bytes: number } {
   const binding = requireBinding(db, file);
+  checkStoredPath(binding.probesDir, 'probe-set folder', file ?? '', roots);
   const image = readExample(db, probe)?.image;
   if (!image) throw new SkeinError({ code: 'request', file, where: 'probe', message: `Probe ${probe} has no image in this study's examples.` });
   return readExampleImage(binding.probesDir, image, probe);
