@@ -13,10 +13,12 @@ import { fileURLToPath } from 'node:url';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { build } from 'vite';
 import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import Database from 'better-sqlite3';
 import { startServer, type RunningServer } from '../../app/server/index.ts';
 import { sampleDataDir } from '../../core/api/files.ts';
 import { runScan, createApi } from '../../core/api/index.ts';
 import { PLANTED_UNITS, plantedProbes, writePlanted } from '../support/fixtures.ts';
+import { ensureJointExtras } from '../support/joint-rows.ts';
 
 const repo = fileURLToPath(new URL('../../', import.meta.url));
 const shots = path.join(repo, 'test-output', 'screenshots');
@@ -55,6 +57,8 @@ describe('Unit evidence in Chromium (browser mode)', () => {
     // The scans are not what is tested here (app.test.ts scans through the screens).
     await runScan({ model: w.model, probes: w.probes, study: planted, layers: ['planted'], batch: 300 });
     await runScan({ model: path.join(sampleDataDir(), 'tiles-model.onnx'), probes: path.join(sampleDataDir(), 'tiles'), study: demo });
+    // The roster's interval and the strata's baseline: real ones when the scoring wrote them, else known ones by hand.
+    ensureJointExtras(demo);
     server = await startServer({ port: 0, roots: [sampleDataDir(), home], rendererDir, dataDir: home });
     context = await chromium.launchPersistentContext(path.join(tmp, 'chromium-profile'), {
       executablePath: CHROMIUM, headless: true, args: CHROMIUM_ARGS, viewport: { width: 1360, height: 860 }, colorScheme: 'light',
@@ -179,6 +183,35 @@ describe('Unit evidence in Chromium (browser mode)', () => {
     await page.locator('[data-panel="evidence"]').screenshot({ path: path.join(shots, 'evidence-demo-panel-dark.png') });
     await setTheme('light');
     await page.locator('[data-panel="evidence"]').screenshot({ path: path.join(shots, 'evidence-demo-panel-light.png') });
+  });
+
+  it('shows the concept count interval in the roster, as the study stores it', async () => {
+    await open(`#/roster?study=${encodeURIComponent(demo)}`);
+    await page.locator('[data-row="0"] [data-interval]').waitFor();
+    // Independent of the screen's reader: the stored columns, read with SQL here.
+    const db = new Database(demo, { readonly: true });
+    const top = db.prepare(`SELECT concept_count, concept_low, concept_high FROM unit_score ORDER BY rank LIMIT 1`).get() as Record<string, number>;
+    db.close();
+    expect(await page.locator('[data-row="0"] [data-interval]').textContent()).toBe(`${top.concept_low.toFixed(2)}–${top.concept_high.toFixed(2)}`);
+    await shot('roster-interval-light');
+  });
+
+  it('shows the shuffled-label baseline beside each layer\'s mixed count', async () => {
+    await open(`#/strata?study=${encodeURIComponent(demo)}`);
+    await page.locator('[data-strata-table] [data-baseline]').first().waitFor();
+    const db = new Database(demo, { readonly: true });
+    const nulls = db.prepare(`SELECT l.name, l.units, n.mixed_expected AS expected FROM layer_null n JOIN layer l ON l.id = n.layer_id`).all() as { name: string; units: number; expected: number }[];
+    db.close();
+    expect(nulls.length).toBeGreaterThan(0);
+    for (const n of nulls) {
+      const text = await page.locator(`[data-baseline="${n.name}"]`).textContent();
+      expect(text).toBe(`${((n.expected / n.units) * 100).toFixed(1)}% ≈${Math.round(n.expected)}`);
+    }
+    await page.locator('[data-plot="layer-kinds"] .scatterlayer .point').first().waitFor({ state: 'attached' });
+    await shot('strata-baseline-light');
+    await setTheme('dark');
+    await shot('strata-baseline-dark');
+    await setTheme('light');
     expect(problems).toEqual([]);
   });
 });

@@ -8,6 +8,7 @@ import { spawnSync } from 'node:child_process';
 import fs from 'node:fs';
 import path from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
+import Database from 'better-sqlite3';
 import { createApi, dispatch, runScan } from '../../core/api/index.ts';
 import { PLANTED_UNITS, tempDir, writePlanted } from '../support/fixtures.ts';
 
@@ -119,5 +120,95 @@ print(json.dumps({k: [int(g.sum()), float(a[g].mean())] for k, g in groups.items
     expect(e.drivers).toEqual([]);
     expect(e.none.n).toBe(3000);
     expect(e.ranking.flags).toContain('dead');
+  });
+});
+
+/**
+ * The joint driver model's extras (core/score's joint model writes them: concept-count intervals, the normalised
+ * driver table with share intervals, modulators and nested labels, the shuffled-label baseline per layer). The study
+ * here gets rows written by hand in that table layout, so the screens' readers are checked on known values whether or
+ * not the scoring that writes them has run; a study scored without them shows none.
+ */
+describe('the joint model\'s extras on the screens', () => {
+  let dir: string;
+  let study: string;
+  const api = createApi({});
+  const unit = unitOf('blue+square');
+
+  beforeAll(async () => {
+    dir = tempDir();
+    const w = writePlanted(dir, 1200, 4);
+    study = path.join(dir, 'joint.study');
+    await runScan({ model: w.model, probes: w.probes, study, batch: 300, layers: ['planted'] });
+  });
+
+  const writeJointRows = () => {
+    const db = new Database(study);
+    const cols = (db.prepare(`SELECT name FROM pragma_table_info('unit_score')`).pluck().all() as string[]);
+    if (!cols.includes('concept_low')) db.exec(`ALTER TABLE unit_score ADD COLUMN concept_low REAL; ALTER TABLE unit_score ADD COLUMN concept_high REAL;`);
+    // The table layout of the joint model's migration (core/store/schema.ts), created here when the study predates it.
+    db.exec(`CREATE TABLE IF NOT EXISTS unit_driver (layer_id INTEGER NOT NULL, unit INTEGER NOT NULL, position INTEGER NOT NULL, kind TEXT NOT NULL,
+      labels TEXT NOT NULL, of_labels TEXT, share REAL, share_low REAL, share_high REAL, auroc REAL NOT NULL, q REAL, effect REAL, upper REAL,
+      n_alone INTEGER, mean_alone REAL, n_others INTEGER, mean_others REAL, n_none INTEGER, mean_none REAL, same_as TEXT, PRIMARY KEY (layer_id, unit, position));
+      CREATE TABLE IF NOT EXISTS layer_null (layer_id INTEGER PRIMARY KEY, units_sampled INTEGER NOT NULL, mixed_sampled INTEGER NOT NULL,
+      mixed_expected REAL NOT NULL, mixed_real INTEGER NOT NULL, mixed_at REAL NOT NULL, seed INTEGER NOT NULL);`);
+    const id = (name: string) => db.prepare(`SELECT id FROM label WHERE name = ?`).pluck().get(name) as number;
+    const layerId = db.prepare(`SELECT id FROM layer WHERE name = 'planted'`).pluck().get() as number;
+    const [blue, square, top, circle] = ['blue', 'square', 'top', 'circle'].map(id);
+    db.prepare(`UPDATE unit_score SET concept_low = 1.62, concept_high = 2.05 WHERE layer_id = ? AND unit = ?`).run(layerId, unit);
+    db.prepare(`DELETE FROM unit_driver WHERE layer_id = ? AND unit = ?`).run(layerId, unit);
+    const ins = db.prepare(`INSERT INTO unit_driver (layer_id, unit, position, kind, labels, of_labels, share, share_low, share_high, auroc, q, effect, same_as)
+      VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
+    // The stored drivers keep their order (largest share first); the first is given here as a compound.
+    const stored = JSON.parse(db.prepare(`SELECT drivers FROM unit_score WHERE layer_id = ? AND unit = ?`).pluck().get(layerId, unit) as string) as { label: number }[];
+    const first = stored[0].label === blue ? [blue, square] : [square, blue];
+    ins.run(layerId, unit, 0, 'driver', JSON.stringify(first), null, 0.6, 0.52, 0.68, 0.99, 1e-9, 1, '[]');
+    ins.run(layerId, unit, 1, 'driver', JSON.stringify([first[1]]), null, 0.4, 0.32, 0.48, 0.98, 1e-8, 1, JSON.stringify([[circle]]));
+    ins.run(layerId, unit, 2, 'modulator', JSON.stringify([top]), JSON.stringify([blue]), null, null, null, 0.81, 2e-4, 0.31, '[]');
+    ins.run(layerId, unit, 3, 'nested', JSON.stringify([circle]), JSON.stringify([square]), null, null, null, 0.77, null, null, '[]');
+    db.prepare(`UPDATE unit_score SET drivers = ? WHERE layer_id = ? AND unit = ?`)
+      .run(JSON.stringify([{ label: first[0], labels: first, auroc: 0.99, q: 1e-9, share: 0.6 }, { label: first[1], labels: [first[1]], auroc: 0.98, q: 1e-8, share: 0.4 }]), layerId, unit);
+    db.prepare(`DELETE FROM layer_null`).run();
+    db.prepare(`INSERT INTO layer_null (layer_id, units_sampled, mixed_sampled, mixed_expected, mixed_real, mixed_at, seed) VALUES (?, 7, 1, 1, 3, 1.5, 1)`).run(layerId);
+    db.close();
+    return { first };
+  };
+
+  it('shows none of them for a study scored without them', async () => {
+    const db = new Database(study, { readonly: true });
+    const joint = (db.prepare(`SELECT count(*) FROM sqlite_master WHERE name = 'unit_driver'`).pluck().get() as number) > 0;
+    db.close();
+    if (joint) return; // scored by the joint model already: the next test covers it
+    const e = await api['unit.evidence']({ study, layer: 'planted', unit });
+    expect(e.modulators).toEqual([]);
+    expect(e.nested).toEqual([]);
+    expect(e.drivers.every((d) => d.shareLow === null)).toBe(true);
+    expect(e.ranking.conceptLow).toBe(e.ranking.conceptCount);
+    const t = await api['units.table']({ study });
+    expect(t.conceptLow.every((x) => x === null)).toBe(true);
+    const s = await api['layers.strata']({ study });
+    expect(s.layers[0].baseline).toBeNull();
+  });
+
+  it('names compounds, gives share and count intervals, modulators, nested labels and the layer baseline', async () => {
+    const { first } = writeJointRows();
+    const names = (await api['study.summary']({ study })).labels;
+    const compound = first.map((l) => names[l]).join(' & ');
+    const e = await api['unit.evidence']({ study, layer: 'planted', unit });
+    expect(e.drivers.map((d) => d.name)).toEqual([compound, names[first[1]]]);
+    expect(e.drivers[0].parts).toEqual(first.map((l) => names[l]));
+    expect([e.drivers[0].share, e.drivers[0].shareLow, e.drivers[0].shareHigh]).toEqual([0.6, 0.52, 0.68]);
+    expect(e.drivers[1].sameAs).toEqual(['circle']);
+    expect(e.modulators).toEqual([{ label: 'top', of: 'blue', auroc: 0.81, q: 2e-4, effect: 0.31 }]);
+    expect(e.nested).toEqual([{ label: 'circle', within: 'square', auroc: 0.77 }]);
+    expect([e.ranking.conceptLow, e.ranking.conceptHigh]).toEqual([1.62, 2.05]);
+    // The compound is present where both labels are: with the other driver (one of its own parts) it is never alone.
+    expect(e.drivers[0].alone.n).toBe(0);
+    const t = await api['units.table']({ study });
+    const row = t.unit.findIndex((u, i) => u === unit && t.layers[t.layer[i]].name === 'planted');
+    expect([t.conceptLow[row], t.conceptHigh[row]]).toEqual([1.62, 2.05]);
+    expect(t.driverMore[t.driverOffsets[row]]).toEqual([first[1]]);
+    const s = await api['layers.strata']({ study });
+    expect(s.layers[0].baseline).toEqual({ unitsSampled: 7, mixedSampled: 1, mixedExpected: 1 });
   });
 });

@@ -199,7 +199,7 @@ describe('unit profile helpers', () => {
     expect(String(traces[1].name)).toContain('red');
   });
   it('splits a layer into kind shares summing to one', () => {
-    const s = kindShares({ name: 'l', op: 'Relu', kind: 'dense', units: 8, dead: 1, dense: 1, undriven: 2, single: 3, mixed: 1, meanConceptCount: 1.2, maxConceptCount: 2, histogram: [] });
+    const s = kindShares({ name: 'l', op: 'Relu', kind: 'dense', units: 8, dead: 1, dense: 1, undriven: 2, single: 3, mixed: 1, meanConceptCount: 1.2, maxConceptCount: 2, histogram: [], baseline: null });
     expect(s.mixed + s.single + s.undriven + s.dead + s.dense).toBeCloseTo(1, 12);
     expect(s.single).toBe(3 / 8);
   });

@@ -22,15 +22,16 @@ function table(): UnitTable {
   const t: UnitTable = {
     layers: [{ name: 'block1.relu', kind: 'conv', units: 8, dims: [8, 4, 4] }, { name: 'head.relu', kind: 'dense', units: 10, dims: [10] }],
     labels: ['red', 'blue', 'circle', 'star'],
-    count: rows.length, layer: [], unit: [], rank: [], conceptCount: [], selectivity: [], flags: [], kind: [], kinds: [...UNIT_KINDS],
-    driverOffsets: [0], driverLabel: [], driverShare: [],
+    count: rows.length, layer: [], unit: [], rank: [], conceptCount: [], conceptLow: [], conceptHigh: [], selectivity: [], flags: [], kind: [], kinds: [...UNIT_KINDS],
+    driverOffsets: [0], driverLabel: [], driverShare: [], driverMore: [],
     thresholds: { maxQ: 0.05, minAuroc: 0.75, topQuantile: 0.005, deadFraction: 0.005, denseFraction: 0.5, polysemanticAt: 1.5 },
   };
   rows.forEach(([l, u, cc, sel, f, ds], i) => {
     t.layer.push(l); t.unit.push(u); t.rank.push(i); t.conceptCount.push(cc); t.selectivity.push(sel); t.flags.push(f);
     // The kind column as core sends it (core/score/kind.ts, tested in test/score/kind.test.ts).
     t.kind.push(UNIT_KINDS.indexOf(classifyUnit({ dead: Boolean(f & FLAG_DEAD), dense: Boolean(f & FLAG_DENSE), conceptCount: cc ?? 0 }, 1.5)));
-    for (const [label, share] of ds) { t.driverLabel.push(label); t.driverShare.push(share); }
+    t.conceptLow.push(cc === null ? null : cc * 0.8); t.conceptHigh.push(cc === null ? null : cc * 1.1);
+    for (const [label, share] of ds) { t.driverLabel.push(label); t.driverShare.push(share); t.driverMore.push([]); }
     t.driverOffsets.push(t.driverLabel.length);
   });
   return t;
@@ -48,6 +49,20 @@ describe('kinds and drivers', () => {
   it('reads a row’s drivers from the CSR columns, largest share first', () => {
     expect(driversOf(table(), 0)).toEqual([{ label: 0, name: 'red', share: 0.5 }, { label: 2, name: 'circle', share: 0.3 }, { label: 1, name: 'blue', share: 0.2 }]);
     expect(driversOf(table(), 4)).toEqual([]);
+  });
+
+  it('names a compound driver by its labels joined with &, and finds it by any of its labels', () => {
+    const t = table();
+    t.driverMore[5] = [2]; // row 2's one driver, star, becomes the compound star & circle
+    expect(driversOf(t, 2)).toEqual([{ label: 3, name: 'star & circle', share: 1 }]);
+    expect(units(t, filterRows(t, { ...emptyFilter(), driver: 2 }))).toEqual(['head.relu:4', 'block1.relu:2']);
+    expect(units(t, filterRows(t, { ...emptyFilter(), text: 'circle' }))).toEqual(['head.relu:4', 'block1.relu:2']);
+  });
+
+  it('sorts by the concept count interval: its lower end first, largest first', () => {
+    const t = table();
+    t.conceptLow[1] = 2.5; // row 1 (block1.relu:7) now has the highest lower end
+    expect(units(t, sortRows(t, allRows(t), { key: 'interval', dir: -1 })).slice(0, 3)).toEqual(['block1.relu:7', 'head.relu:4', 'head.relu:0']);
   });
 
   it('counts the units each label drives and of how many it is the only driver', () => {

@@ -10,7 +10,7 @@ import { SkeinError } from '../../errors.ts';
 import { readBinding, findLayer, labelNames, type StudyBinding } from '../../store/binding.ts';
 import { readUnit, readUnitArgmax } from '../../store/activations.ts';
 import { unitDetail, probeLabels } from './read-models.ts';
-import { probesOfLabel, probeDisplays, rankNeighbours, type RankNeighbour } from '../../store/evidence.ts';
+import { probesOfLabel, probeDisplays, rankNeighbours, readJointExtras, readConceptIntervals, type RankNeighbour } from '../../store/evidence.ts';
 import { driverPresence, responseTable, type ResponseGroup } from '../../score/response.ts';
 
 export type EvidenceRequest = z.infer<(typeof screenRequests)['unit.evidence']>;
@@ -27,8 +27,12 @@ export interface DriverEvidence {
   /** As the scores name it; a compound names its parts joined by " & ". */
   name: string;
   parts: string[];
-  /** The stored share of the unit's response (null for a driver the caller supplied). */
+  /** The stored share of the unit's response and its 90% bootstrap interval (null for a driver the caller supplied). */
   share: number | null;
+  shareLow: number | null;
+  shareHigh: number | null;
+  /** Other drivers the scores count as the same concept, their probes nearly coinciding (stored drivers only). */
+  sameAs: string[];
   alone: ResponseGroup;
   withOthers: ResponseGroup;
   effectAlone: number | null;
@@ -44,6 +48,9 @@ export interface RankingReason {
   rank: number;
   total: number;
   conceptCount: number;
+  /** The concept count's 90% bootstrap interval; the ranking orders by its lower end first. */
+  conceptLow: number;
+  conceptHigh: number;
   /** Σ −log10 q over the drivers: the tie-breaker. */
   evidence: number;
   flags: string[];
@@ -63,6 +70,10 @@ export interface UnitEvidence {
   /** The highest-activating probes that carry none of the drivers: what else the unit fires on. */
   noneExamples: EvidenceExample[];
   ranking: RankingReason;
+  /** Labels that raise one driver's response only: shown, not counted as concepts (from the scores; [] before the joint model). */
+  modulators: { label: string; of: string; auroc: number; q: number | null; effect: number | null }[];
+  /** Labels set aside as (nearly) containing a driver in this probe set, so not counted as a second concept. */
+  nested: { label: string; within: string; auroc: number }[];
   /** The formulas behind the numbers, as the page states them. */
   formulas: { effect: string; aboveNone: string };
 }
@@ -72,10 +83,6 @@ export const EVIDENCE_FORMULAS = {
   aboveNone: 'above none = P(a probe of the group activates the unit more than a probe with none of the drivers), ties count half (Mann–Whitney U / (n_group · n_none))',
 };
 
-/** A stored driver's parts: its `labels` when the scores carry them (compound drivers), else its one label. */
-function partsOf(d: { label: string; labels?: string[] }): string[] {
-  return d.labels?.length ? d.labels : [d.label];
-}
 
 export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, 'study'>, file?: string): UnitEvidence {
   const detail = unitDetail(db, req.layer, req.unit, file);
@@ -83,9 +90,15 @@ export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, '
   const layer = findLayer(db, req.layer, file);
   const names = labelNames(db);
   const idOf = new Map(names.map((n, i) => [n, i]));
+  const term = (ids: number[]) => ids.map((l) => names[l]).join(' & ');
+  // The joint model's driver table, when the scores have one, names compounds and carries the share intervals.
+  const joint = readJointExtras(db, layer.id, req.unit);
+  const stored = joint && joint.drivers.length === detail.drivers.length
+    ? joint.drivers.map((d) => ({ name: term(d.labels), parts: d.labels.map((l) => names[l]), share: d.share, shareLow: d.shareLow, shareHigh: d.shareHigh, sameAs: d.sameAs.map(term) }))
+    : detail.drivers.map((d) => ({ name: d.label, parts: [d.label], share: d.share as number | null, shareLow: null as number | null, shareHigh: null as number | null, sameAs: [] as string[] }));
   const chosen = req.drivers
-    ? req.drivers.map((parts) => ({ name: parts.join(' & '), parts, share: null as number | null }))
-    : (detail.drivers as { label: string; share: number; labels?: string[] }[]).map((d) => ({ name: d.label, parts: partsOf(d), share: d.share }));
+    ? req.drivers.map((parts) => ({ name: parts.join(' & '), parts, share: null as number | null, shareLow: null as number | null, shareHigh: null as number | null, sameAs: [] as string[] }))
+    : stored;
   const presence = chosen.map((d, i) => driverPresence(run.probeCount, d.parts.map((label, j) => {
     const id = idOf.get(label);
     if (id === undefined) throw new SkeinError({ code: 'request', file, where: `drivers.${i}.${j}`, message: `No label "${label}" in this study.` });
@@ -101,11 +114,18 @@ export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, '
     return probeDisplays(db, probes).map((x, i) => ({ ...x, value: values[x.probe], location: locations[i], labels: labels[i] }));
   };
   const neighbours = rankNeighbours(db, detail.rank);
+  const interval = readConceptIntervals(db)?.get(`${layer.id}:${req.unit}`);
   return {
     layer: layer.name, unit: req.unit, probes: run.probeCount, driverSource: req.drivers ? 'request' : 'scores',
     drivers: chosen.map((d, i) => ({ ...d, ...table.drivers[i], examples: examplesOf(table.drivers[i].examples) })),
     none: table.none, all: table.all, noneExamples: examplesOf(table.noneExamples),
-    ranking: { rank: detail.rank, total: neighbours.total, conceptCount: detail.conceptCount, evidence: detail.evidence, flags: detail.flags, above: neighbours.above, below: neighbours.below },
+    ranking: {
+      rank: detail.rank, total: neighbours.total, conceptCount: detail.conceptCount,
+      conceptLow: interval?.low ?? detail.conceptCount, conceptHigh: interval?.high ?? detail.conceptCount,
+      evidence: detail.evidence, flags: detail.flags, above: neighbours.above, below: neighbours.below,
+    },
+    modulators: (joint?.modulators ?? []).map((m) => ({ label: term(m.label), of: term(m.of), auroc: m.auroc, q: m.q, effect: m.effect })),
+    nested: (joint?.nested ?? []).map((x) => ({ label: term(x.label), within: term(x.within), auroc: x.auroc })),
     formulas: EVIDENCE_FORMULAS,
   };
 }

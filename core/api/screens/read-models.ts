@@ -16,6 +16,7 @@ import { readAllDrivers, readLayerNulls, readUnitDrivers, type DriverRecord } fr
 import { defaultScoreOptions } from '../../score/unit.ts';
 import { UNIT_KINDS, classifyUnit, type UnitKind } from '../../score/kind.ts';
 import { readExampleImage } from '../../probes/example-image.ts';
+import { readConceptIntervals, readLayerBaselines } from '../../store/evidence.ts';
 import { checkStoredPath } from '../context.ts';
 
 export { UNIT_KINDS, type UnitKind };
@@ -196,6 +197,9 @@ export interface UnitTable {
   rank: number[];
   /** Rounded to 4 decimals (display precision); null where the score is not a number. */
   conceptCount: (number | null)[];
+  /** The concept count's 90% bootstrap interval (the ranking uses the lower end); null where the scores carry none. */
+  conceptLow: (number | null)[];
+  conceptHigh: (number | null)[];
   selectivity: (number | null)[];
   /** FLAG_DEAD | FLAG_DENSE. */
   flags: number[];
@@ -205,6 +209,8 @@ export interface UnitTable {
   driverOffsets: number[];
   driverLabel: number[];
   driverShare: number[];
+  /** Per driver entry: the other labels of a compound driver (all present together), [] for a one-label driver. */
+  driverMore: number[][];
   thresholds: ScoreThresholds;
 }
 
@@ -232,20 +238,26 @@ export function unitTable(db: Database.Database, file?: string): UnitTable {
   const kindIndex = new Map(UNIT_KINDS.map((k, i) => [k, i]));
   const t: UnitTable = {
     layers: layers.map((l) => ({ name: l.name, kind: l.kind, units: l.units, dims: l.dims })),
-    labels: labelNames(db), count: 0, layer: [], unit: [], rank: [], conceptCount: [], selectivity: [], flags: [], kind: [], kinds: [...UNIT_KINDS],
-    driverOffsets: [0], driverLabel: [], driverShare: [], thresholds,
+    labels: labelNames(db), count: 0, layer: [], unit: [], rank: [], conceptCount: [], conceptLow: [], conceptHigh: [], selectivity: [], flags: [], kind: [], kinds: [...UNIT_KINDS],
+    driverOffsets: [0], driverLabel: [], driverShare: [], driverMore: [], thresholds,
   };
+  const intervals = readConceptIntervals(db);
   for (const s of readUnitSummaries(db)) {
     t.layer.push(layerIndex.get(s.layerId)!);
     t.unit.push(s.unit);
     t.rank.push(s.rank);
     t.conceptCount.push(round4(s.conceptCount));
+    const ci = intervals?.get(`${s.layerId}:${s.unit}`);
+    t.conceptLow.push(ci ? round4(ci.low) : null);
+    t.conceptHigh.push(ci ? round4(ci.high) : null);
     t.selectivity.push(round4(s.selectivity));
     t.flags.push((s.dead ? FLAG_DEAD : 0) | (s.dense ? FLAG_DENSE : 0));
     t.kind.push(kindIndex.get(classifyUnit(s, thresholds.polysemanticAt))!);
     for (const d of s.drivers) {
       t.driverLabel.push(d.label);
       t.driverShare.push(round4(d.share) ?? 0);
+      // The joint model stores a compound driver's labels beside its first one.
+      t.driverMore.push(((d as { labels?: number[] }).labels ?? []).filter((l) => l !== d.label));
     }
     t.driverOffsets.push(t.driverLabel.length);
   }
@@ -479,6 +491,11 @@ export interface LayerStrataRow {
   maxConceptCount: number;
   /** Units per concept-count bin (edges in LayerStrata.edges). */
   histogram: number[];
+  /**
+   * The shuffled-label baseline: `unitsSampled` units scored again with the probe labels shuffled, of which
+   * `mixedSampled` came out mixed; `mixedExpected` scales that to the layer. null when the scores carry none.
+   */
+  baseline: { unitsSampled: number; mixedSampled: number; mixedExpected: number } | null;
 }
 
 export interface LayerStrata { polysemanticAt: number; edges: number[]; layers: LayerStrataRow[]; thresholds: ScoreThresholds }
@@ -505,10 +522,11 @@ export function layerStrata(db: Database.Database, file?: string): LayerStrata {
     if (cc > s.maxConceptCount) s.maxConceptCount = cc;
     s.histogram[binOf(cc, 0, width, bins)]++;
   }
+  const baselines = new Map(readLayerBaselines(db).map(({ layerId, ...b }) => [layerId, b]));
   return {
     polysemanticAt: thresholds.polysemanticAt, thresholds,
     edges: Array.from({ length: bins + 1 }, (_, i) => i * width),
-    layers: [...byLayer.values()].map(({ sum, driven, ...s }) => ({ ...s, meanConceptCount: driven ? sum / driven : null })),
+    layers: [...byLayer.entries()].map(([layerId, { sum, driven, ...s }]) => ({ ...s, meanConceptCount: driven ? sum / driven : null, baseline: baselines.get(layerId) ?? null })),
   };
 }
 

@@ -9,13 +9,13 @@ export function signed(x: number | null | undefined, digits = 2): string {
   return Number(s) === 0 ? s : x > 0 ? `+${s}` : `−${s}`;
 }
 
-// The tolerances of core/score's ranking (rankUnits): within these two figures are a tie.
-const COUNT_TIE = 1e-9;
+// The tolerance of core/score's ranking (rankUnits): figures within it are a tie.
+const TIE = 1e-9;
 
 /**
  * One or two sentences on why a unit sits at its place in the study-wide ranking, from the stored scores: the
- * ranking's rule (unflagged first; concept count, most first; ties broken by the evidence Σ −log10 q) applied to this
- * unit and its neighbours.
+ * ranking's rule (unflagged first; the lower end of the concept count's 90% interval, most first; then the count
+ * itself; then the evidence Σ −log10 q) applied to this unit and its neighbours.
  */
 export function rankReason(r: RankingReason): string {
   const place = `Ranked ${count(r.rank + 1)} of ${count(r.total)}`;
@@ -25,15 +25,19 @@ export function rankReason(r: RankingReason): string {
   if (!(r.conceptCount > 0)) {
     return `${place}: no label passes the driver test, so its concept count is 0 and it sits below every unit with a driver.`;
   }
-  const parts = [`${place} by its concept count, ${fixed(r.conceptCount, 2)} (most polysemantic first).`];
-  const tieWith = [r.above, r.below].filter((n) => n && !n.flagged && Math.abs(n.conceptCount - r.conceptCount) <= COUNT_TIE);
-  if (tieWith.length) {
-    const n = tieWith[0]!;
-    parts.push(`Tied on concept count with ${unitName(n.layer, n.unit)}; the evidence Σ −log10 q over the drivers breaks the tie (${fixed(r.evidence, 1)} here, ${fixed(n.evidence, 1)} there).`);
+  const parts = [`${place} by the cautious end of its concept count: ${fixed(r.conceptLow, 2)}, the lower bound of its 90% interval ${fixed(r.conceptLow, 2)}–${fixed(r.conceptHigh, 2)} (estimate ${fixed(r.conceptCount, 2)}); most polysemantic first.`];
+  const tied = [r.above, r.below].find((n) => n && !n.flagged && Math.abs(n.conceptLow - r.conceptLow) <= TIE);
+  if (tied) {
+    const name = unitName(tied.layer, tied.unit);
+    if (Math.abs(tied.conceptCount - r.conceptCount) > TIE) {
+      parts.push(`Tied on that bound with ${name}; the estimate breaks the tie (${fixed(r.conceptCount, 2)} here, ${fixed(tied.conceptCount, 2)} there).`);
+    } else {
+      parts.push(`Tied on both figures with ${name}; the evidence Σ −log10 q over the drivers breaks the tie (${fixed(r.evidence, 1)} here, ${fixed(tied.evidence, 1)} there).`);
+    }
   } else {
     const around: string[] = [];
-    if (r.above) around.push(`above it ${unitName(r.above.layer, r.above.unit)} at ${fixed(r.above.conceptCount, 2)}`);
-    if (r.below && !r.below.flagged) around.push(`below it ${unitName(r.below.layer, r.below.unit)} at ${fixed(r.below.conceptCount, 2)}`);
+    if (r.above) around.push(`above it ${unitName(r.above.layer, r.above.unit)} at ${fixed(r.above.conceptLow, 2)}`);
+    if (r.below && !r.below.flagged) around.push(`below it ${unitName(r.below.layer, r.below.unit)} at ${fixed(r.below.conceptLow, 2)}`);
     if (around.length) parts.push(`${around.join('; ')}.`.replace(/^a/, 'A').replace(/^b/, 'B'));
   }
   return parts.join(' ');

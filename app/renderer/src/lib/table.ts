@@ -25,7 +25,7 @@ export interface RosterFilter {
 
 export const emptyFilter = (): RosterFilter => ({ text: '', layers: [], kind: 'any', driver: null });
 
-export type SortKey = 'rank' | 'layer' | 'unit' | 'concepts' | 'hurt' | 'drivers' | 'selectivity' | 'flags' | 'review';
+export type SortKey = 'rank' | 'layer' | 'unit' | 'concepts' | 'interval' | 'hurt' | 'drivers' | 'selectivity' | 'flags' | 'review';
 export type SortDir = 1 | -1;
 export interface RosterSort { key: SortKey; dir: SortDir }
 
@@ -34,7 +34,7 @@ export const defaultSort = (): RosterSort => ({ key: 'rank', dir: 1 });
 
 /** Direction a column sorts in when first clicked: big numbers first for scores, natural order otherwise. */
 export function firstDirection(key: SortKey): SortDir {
-  return key === 'concepts' || key === 'hurt' || key === 'selectivity' || key === 'flags' ? -1 : 1;
+  return key === 'concepts' || key === 'interval' || key === 'hurt' || key === 'selectivity' || key === 'flags' ? -1 : 1;
 }
 
 /** The kind core classified this row as (never recomputed here). */
@@ -42,10 +42,21 @@ export function kindOf(t: UnitTable, i: number): CoreUnitKind {
   return t.kinds[t.kind[i]];
 }
 
+/** A unit's drivers; a compound driver is named by its labels joined by " & " (all present together). */
 export function driversOf(t: UnitTable, i: number): { label: number; name: string; share: number }[] {
   const out = [];
-  for (let k = t.driverOffsets[i]; k < t.driverOffsets[i + 1]; k++) out.push({ label: t.driverLabel[k], name: t.labels[t.driverLabel[k]], share: t.driverShare[k] });
+  for (let k = t.driverOffsets[i]; k < t.driverOffsets[i + 1]; k++) {
+    const more = t.driverMore?.[k] ?? [];
+    out.push({ label: t.driverLabel[k], name: [t.driverLabel[k], ...more].map((l) => t.labels[l]).join(' & '), share: t.driverShare[k] });
+  }
   return out;
+}
+
+/** True when driver entry k names `label`, as its only label or as one part of a compound. */
+function driverHas(t: UnitTable, k: number, test: (label: number) => boolean): boolean {
+  if (test(t.driverLabel[k])) return true;
+  const more = t.driverMore?.[k];
+  return !!more && more.some(test);
 }
 
 interface Term { layerHit: Uint8Array; labelHit: Uint8Array; unit: number | null }
@@ -86,13 +97,13 @@ export function filterRows(t: UnitTable, f: RosterFilter, order: Int32Array = al
     const d1 = t.driverOffsets[i + 1];
     if (f.driver !== null) {
       let hit = false;
-      for (let k = d0; k < d1; k++) if (t.driverLabel[k] === f.driver) { hit = true; break; }
+      for (let k = d0; k < d1; k++) if (driverHas(t, k, (l) => l === f.driver)) { hit = true; break; }
       if (!hit) continue;
     }
     let all = true;
     for (const term of terms) {
       let hit = term.layerHit[t.layer[i]] === 1 || term.unit === t.unit[i];
-      for (let k = d0; !hit && k < d1; k++) hit = term.labelHit[t.driverLabel[k]] === 1;
+      for (let k = d0; !hit && k < d1; k++) hit = driverHas(t, k, (l) => term.labelHit[l] === 1);
       if (!hit) { all = false; break; }
     }
     if (all) out[n++] = i;
@@ -108,6 +119,8 @@ function sortKeys(t: UnitTable, key: SortKey, hurt?: Float64Array | null): Float
     case 'layer': for (let i = 0; i < t.count; i++) k[i] = t.layer[i] * 2 ** 32 + t.unit[i]; break;
     case 'unit': for (let i = 0; i < t.count; i++) k[i] = t.unit[i]; break;
     case 'concepts': for (let i = 0; i < t.count; i++) k[i] = t.conceptCount[i] ?? NaN; break;
+    // By the interval's lower end (the ranking's cautious figure), then its width, narrowest first.
+    case 'interval': for (let i = 0; i < t.count; i++) k[i] = (t.conceptLow[i] ?? NaN) - ((t.conceptHigh[i] ?? 0) - (t.conceptLow[i] ?? 0)) * 1e-6; break;
     case 'selectivity': for (let i = 0; i < t.count; i++) k[i] = t.selectivity[i] ?? NaN; break;
     case 'flags': for (let i = 0; i < t.count; i++) k[i] = t.flags[i]; break;
     case 'hurt': if (hurt) k.set(hurt); else k.fill(NaN); break;
