@@ -28,7 +28,10 @@ export function resolveInside(root: FolderRoot, rel: string, at: { file: string;
   if (path.isAbsolute(rel) || path.win32.isAbsolute(rel)) throw escapes();
   const file = path.resolve(root.dir, rel);
   // The folder itself is no file inside it; isInside counts it as inside, so it is refused here by name.
-  if (file === path.resolve(root.dir) || !isInside(root.dir, file)) throw escapes();
+  if (file === path.resolve(root.dir)) {
+    throw probesError(at.file, at.where, `${what} "${rel}" is the probe-set folder itself, not a file; name a file inside it, e.g. "labels.csv"`);
+  }
+  if (!isInside(root.dir, file)) throw escapes();
   let real: string;
   try {
     real = fs.realpathSync(file);

@@ -42,6 +42,10 @@ export function openStudyDb(file: string, opts: OpenOptions = {}): Database.Data
     const appId = db.pragma('application_id', { simple: true }) as number;
     const version = db.pragma('user_version', { simple: true }) as number;
     const tables = (db.prepare(`SELECT count(*) AS n FROM sqlite_master`).get() as { n: number }).n;
+    if (exists && tables === 0 && !opts.create) {
+      // A read never turns a file into a study (an empty or zero-byte file stays as it is).
+      throw new SkeinError({ code: 'study', file: abs, message: 'This file is empty, not a study. Run a scan into it first (skein scan <model> <probes> --study FILE) or choose a study file.' });
+    }
     if (exists && tables > 0 && appId !== APP_ID) {
       throw new SkeinError({ code: 'study', file: abs, message: 'This SQLite file is not a Skein study. Choose a study file or a new file name.' });
     }

@@ -2,7 +2,7 @@
  * Nothing lost (issue 10): a model onnxruntime refuses must not discard what a study holds, a failed scan of a new
  * study leaves no file, and one study has one writer at a time, with a lock that dies with its process.
  */
-import { spawn } from 'node:child_process';
+import { spawn, spawnSync } from 'node:child_process';
 import fs from 'node:fs';
 import path from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
@@ -118,5 +118,18 @@ describe('one writer per study', () => {
     const r = await runScan({ model, probes, study, layers: ['planted'], batch: 64 });
     expect(r.probes).toBe(6000);
     expect(fs.existsSync(lockPathOf(study))).toBe(false);
+  });
+});
+
+describe('a read never creates or writes a study', () => {
+  it('skein rank on a 0-byte file refuses and leaves it 0 bytes, with no side files', () => {
+    const dir = tempDir();
+    const empty = path.join(dir, 'empty.study');
+    fs.writeFileSync(empty, '');
+    const r = spawnSync(process.execPath, [bin, 'rank', empty], { encoding: 'utf8' });
+    expect(r.status).not.toBe(0);
+    expect(r.stderr).toMatch(/empty, not a study/);
+    expect(fs.statSync(empty).size).toBe(0);
+    expect(fs.readdirSync(dir)).toEqual(['empty.study']);
   });
 });

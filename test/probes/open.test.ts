@@ -149,6 +149,13 @@ describe('openProbeSet: each validation error names the file, the place and the 
     expectProbesError(() => openProbeSet(viaManifest), { file: path.join(viaManifest, 'manifest.json'), where: 'labels', message: /labels file ".*" escapes the probe-set folder/ });
   });
 
+  it('"labels": "." says it names the folder itself, not that it escapes (issue 10)', () => {
+    for (const labels of ['.', './', 'sub/..']) {
+      const dir = probeSetDir({ 'manifest.json': manifest({ labels }) });
+      expectProbesError(() => openProbeSet(dir), { file: path.join(dir, 'manifest.json'), where: 'labels', message: /is the probe-set folder itself, not a file/ });
+    }
+  });
+
   it('a missing image file, with its line', () => {
     const dir = probeSetDir({ 'manifest.json': manifest({ examples: 'examples.csv' }), 'examples.csv': 'probe,text,image\n0,a,\n2,b,img/2.png\n' });
     expectProbesError(() => openProbeSet(dir), { file: path.join(dir, 'examples.csv'), where: 'line 3', message: /image "img\/2\.png" was not found/ });
