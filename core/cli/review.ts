@@ -13,12 +13,13 @@ export const REVIEW_HELP = `  skein review edit <study> <layer> <unit> [--tag T]
   skein review show <study> <layer> <unit> [--json]
   skein review list <study> [--tag T] [--status S] [--layer L] [--filter k=v,…] [--json]
   skein review undo <study> [--reviewer NAME]        revert your newest edit (repeat to go further back)
-  skein review resolve <study> <layer> <unit> <field> mine|theirs [--reviewer NAME]
+  skein review resolve <study> <layer> <unit> <field> here|bundle [--reviewer NAME]
   skein review export <study> --out bundle.json [--tag T] [--status S] [--layer L] [--filter k=v,…]
-  skein review import <study> <bundle.json> [--preview] [--map-by-name | --map a=b,…] [--keep mine|theirs] [--json]
+  skein review import <study> <bundle.json> [--preview] [--map-by-name | --map a=b,…] [--keep here|bundle] [--json]
                                   exit 3 when conflicts are left open (they are listed)
   skein review reviewer [NAME]    show or set your reviewer name (stored in the preferences file)
-  skein report <study> --out report.html [--csv out.csv] (--tag T | --status S | --all | --filter k=v,…)
+  skein report <study> --out report.html [--csv out.csv] [--top K | --tag T | --status S | --layer L | --all | --filter k=v,…]
+      no selection: the K top-ranked units (20 by default) with any review of them; --all: every reviewed unit
       filter keys: tag, status, layer, reviewer, text, conflicted; statuses: unreviewed looking confirmed doubtful parked`;
 
 /** Exit code of an import that merged but left conflicts for a person to decide. */
@@ -81,7 +82,7 @@ function mappingFrom(values: Record<string, unknown>): unknown {
 const show = (v: FieldValue) => (typeof v === 'boolean' ? (v ? 'tagged' : 'not tagged') : JSON.stringify(v.length > 60 ? `${v.slice(0, 59)}…` : v));
 
 export function conflictLines(conflicts: readonly ConflictDetail[]): string[] {
-  return conflicts.map((c) => `  ${c.layer} unit ${c.unit}  ${c.field}:  here ${show(c.mine.value)}${c.mine.author ? ` (${c.mine.author})` : ''}  ·  theirs ${show(c.theirs.value)} (${c.theirs.author ?? '?'})`);
+  return conflicts.map((c) => `  ${c.layer} unit ${c.unit}  ${c.field}:  here ${show(c.mine.value)}${c.mine.author ? ` (${c.mine.author})` : ''}  ·  bundle ${show(c.theirs.value)} (${c.theirs.author ?? '?'})`);
 }
 
 function printReview(r: UnitReview): void {
@@ -94,6 +95,13 @@ function printReview(r: UnitReview): void {
     console.log('history (newest first):');
     for (const e of r.history) console.log(`  ${e.at}  ${e.author.padEnd(12)} ${e.field} ${show(e.old)} → ${show(e.new)}${e.undoes ? '  (undo)' : ''}${e.origin === 'import' ? '  (imported)' : ''}`);
   }
+}
+
+/** Which side of a conflict to keep, in the CLI's words: "here" (this study) or "bundle"; mine/theirs still read. */
+function keepOf(word: string | undefined): 'mine' | 'theirs' | null {
+  if (word === 'here' || word === 'mine') return 'mine';
+  if (word === 'bundle' || word === 'theirs') return 'theirs';
+  return null;
 }
 
 function printImport(r: ImportResult | ReviewPreview, preview: boolean): void {
@@ -163,11 +171,12 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
       }
       case 'resolve': {
         const a = parse(rest, { reviewer: { type: 'string' } }, 5);
-        const [study, layer, unitText, field, keep] = a.positionals;
-        if (keep !== 'mine' && keep !== 'theirs') throw new UsageError(`the last argument is mine or theirs, got "${keep}"`);
+        const [study, layer, unitText, field, keepWord] = a.positionals;
+        const keep = keepOf(keepWord);
+        if (!keep) throw new UsageError(`the last argument is here (this study's value) or bundle (the bundle's), got "${keepWord}"`);
         const reviewer = await reviewerOf(api, a.values.reviewer);
         await api['review.resolve'](parseRequest('review.resolve', { study, reviewer, resolutions: [{ layer, unit: unitArg(unitText), field, keep }] }));
-        process.stderr.write(`resolved ${field} of ${layer} unit ${unitText}: kept ${keep}\n`);
+        process.stderr.write(`resolved ${field} of ${layer} unit ${unitText}: kept ${keep === 'mine' ? "this study's value" : "the bundle's value"}\n`);
         return 0;
       }
       case 'export': {
@@ -190,8 +199,8 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
           else printImport(p, true);
           return p.refused ? 1 : p.conflicts.length ? EXIT_CONFLICTS : 0;
         }
-        const keep = a.values.keep;
-        if (keep !== undefined && keep !== 'mine' && keep !== 'theirs') throw new UsageError(`--keep is mine or theirs, got "${keep}"`);
+        const keep = a.values.keep === undefined ? undefined : keepOf(a.values.keep as string);
+        if (keep === null) throw new UsageError(`--keep is here (this study's values) or bundle (the bundle's), got "${a.values.keep}"`);
         let resolutions: unknown[] | undefined;
         let reviewer: string | undefined = a.values.reviewer as string | undefined;
         if (keep) {
@@ -204,7 +213,7 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
         if (a.values.json) console.log(JSON.stringify(r, null, 1));
         else printImport(r, false);
         if (r.conflicts.length) {
-          process.stderr.write(`skein review import: ${r.conflicts.length} conflict${r.conflicts.length === 1 ? '' : 's'} left open. Decide them: rerun with --keep mine|theirs, or skein review resolve ${study} <layer> <unit> <field> mine|theirs.\n`);
+          process.stderr.write(`skein review import: ${r.conflicts.length} conflict${r.conflicts.length === 1 ? '' : 's'} left open. Decide them: rerun with --keep here|bundle, or skein review resolve ${study} <layer> <unit> <field> here|bundle.\n`);
           return EXIT_CONFLICTS;
         }
         return 0;
@@ -229,15 +238,33 @@ export async function reviewCommand(argv: string[], api: Api): Promise<number> {
   }
 }
 
+/** Units in a report written with no selection: the top of the ranking. */
+export const DEFAULT_REPORT_TOP = 20;
+
 export async function reportCommand(argv: string[], api: Api): Promise<number> {
   try {
-    const a = parse(argv, { ...FILTER_OPTIONS, out: { type: 'string' }, csv: { type: 'string' }, all: { type: 'boolean' }, reviewer: { type: 'string' } }, 1);
+    const a = parse(argv, { ...FILTER_OPTIONS, out: { type: 'string' }, csv: { type: 'string' }, all: { type: 'boolean' }, top: { type: 'string' }, reviewer: { type: 'string' } }, 1);
     if (typeof a.values.out !== 'string') throw new UsageError('report needs --out report.html');
-    const filter = filterFromArgs(a.values);
-    if (!a.values.all && !Object.keys(filter).length) throw new UsageError('say which units: --tag T, --status S, --layer L, --filter … or --all (every annotated unit)');
-    if (a.values.all && Object.keys(filter).length) throw new UsageError('--all takes every annotated unit; leave out the other filters or --all');
+    const study = a.positionals[0];
+    let filter = filterFromArgs(a.values);
+    const selected = Object.keys(filter).length > 0;
+    if (a.values.all && selected) throw new UsageError('--all takes every annotated unit; leave out the other filters or --all');
+    if (a.values.top !== undefined && (selected || a.values.all)) throw new UsageError('--top picks the top-ranked units; leave out the other filters or --top');
+    if (a.values.all) {
+      const reviewed = await api['review.list'](parseRequest('review.list', { study }));
+      if (reviewed.count === 0) {
+        process.stderr.write(`skein report: no unit of ${study} has a review yet, so --all selects nothing and no report was written. Leave out --all for the top-ranked units, or review units first (skein review edit … --tag T).\n`);
+        return 1;
+      }
+    } else if (!selected) {
+      // No selection: the study's results, the top-ranked units, with any review of them.
+      const top = a.values.top === undefined ? DEFAULT_REPORT_TOP : Number(a.values.top);
+      if (!Number.isInteger(top) || top < 1) throw new UsageError(`--top needs a whole number of units, got "${a.values.top}"`);
+      const ranked = await api['study.rank'](parseRequest('study.rank', { study, top }));
+      filter = { units: ranked.map((r) => ({ layer: r.layer, unit: r.unit })) };
+    }
     const r = await api['report.write'](parseRequest('report.write', {
-      study: a.positionals[0], out: a.values.out, csv: a.values.csv, filter, reviewer: a.values.reviewer,
+      study, out: a.values.out, csv: a.values.csv, filter, reviewer: a.values.reviewer,
     }));
     process.stderr.write(`wrote ${r.units} unit${r.units === 1 ? '' : 's'} to ${r.file} (${Math.round(r.bytes / 1024)} KiB)${r.csv ? ` and ${path.basename(r.csv)}` : ''}\n`);
     return 0;

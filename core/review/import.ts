@@ -2,7 +2,7 @@
  * Importing a colleague's bundle: check its fingerprints (another model or probe set needs a confirmed mapping of
  * layers), then take the union of its events with this study's. Fields only one side changed merge; fields both
  * changed since their common history to different values are conflicts: listed, kept as this study shows them, and
- * resolved by an edit (keep mine / keep theirs / a new value). The plan is computed without writing (preview); the
+ * resolved by an edit (this study's value, the bundle's, or a new one). The plan is computed without writing (preview); the
  * import recomputes it inside one IMMEDIATE transaction and writes it whole, or nothing.
  */
 import crypto from 'node:crypto';

@@ -116,10 +116,66 @@ describe('Skein in Chromium (browser mode)', () => {
     expect(defaults.length).toBeGreaterThanOrEqual(2); // the demo model has a conv and a dense stage (sample-data/README.md)
     expect(await page.locator('[data-tensors] tr:has(input[type="checkbox"]:checked)').evaluateAll((trs) => trs.map((tr) => tr.getAttribute('data-tensor')))).toEqual(defaults);
     await shot('capture-light');
+    // Before the scan, the other screens say what to do next and offer the button that does it (no CLI command).
+    await page.locator('header nav button', { hasText: 'Strata' }).click();
+    await page.locator('[data-scan-first]').waitFor();
+    expect(await page.locator('main').textContent()).not.toMatch(/skein scan/);
+    await shot('strata-unscanned-light');
+    await page.locator('header nav button', { hasText: 'Roster' }).click();
+    await page.locator('[data-scan-first]').waitFor();
+    await shot('roster-unscanned-light');
+    await page.locator('[data-scan-first]').click();
+    await page.getByRole('heading', { name: 'Capture' }).waitFor();
+    await page.locator('[data-tensors] tr:has(input[type="checkbox"]:checked)').first().waitFor();
     await page.locator('[data-start-scan]').click();
     await page.locator('[data-job-state]').waitFor();
     await page.getByRole('heading', { name: 'Roster' }).waitFor({ timeout: 240_000 });
     await page.locator('[data-row="0"]').waitFor();
+  });
+
+  it('reviews right after the scan, with no reload: the name is asked once, a dismissed prompt keeps the tag, focus comes back', async () => {
+    // The review was read when the scan handed over to the roster (it used to wait for a reload).
+    await page.locator('[data-reviewer]', { hasText: 'set your reviewer name' }).waitFor();
+    await page.locator('[data-row="0"] .layer').click();
+    await page.keyboard.press('t');
+    const tagInput = page.locator('[data-review-dock] [data-tag-input]');
+    await tagInput.waitFor();
+    const focusedIs = (attr: string) => page.evaluate((a) => document.activeElement?.hasAttribute(a) ?? false, attr);
+    await expect.poll(() => focusedIs('data-tag-input')).toBe(true);
+    await page.keyboard.type('first-look');
+    await page.keyboard.press('Enter');
+    await page.locator('[data-reviewer-dialog]').waitFor();
+    await shot('review-after-scan-name-light');
+    // Dismissed: the tag is still in its box and the keyboard is back in it.
+    await page.keyboard.press('Escape');
+    await page.locator('[data-reviewer-dialog]').waitFor({ state: 'detached' });
+    expect(await tagInput.inputValue()).toBe('first-look');
+    await expect.poll(() => focusedIs('data-tag-input')).toBe(true);
+    await page.keyboard.press('Enter');
+    await page.locator('[data-reviewer-dialog]').waitFor();
+    await page.keyboard.type('Ada');
+    await page.keyboard.press('Enter');
+    await page.locator('[data-reviewer]', { hasText: 'reviewing as Ada' }).waitFor();
+    await page.locator('[data-row="0"] [data-row-tag="first-look"]').waitFor();
+    // The next keys after the dialog are text: m, u and n would open Merge, the roster and the note as shortcuts.
+    await expect.poll(() => focusedIs('data-tag-input')).toBe(true);
+    await page.keyboard.type('mun');
+    expect(await tagInput.inputValue()).toBe('mun');
+    expect(page.url()).toContain('#/roster');
+    await tagInput.fill('');
+    await page.keyboard.press('Escape');
+    await page.locator('[data-review-dock]').waitFor({ state: 'detached' });
+    // A note typed next is saved whole, signed with the saved name: no second prompt.
+    await page.keyboard.press('n');
+    await expect.poll(() => focusedIs('data-note-input')).toBe(true);
+    await page.keyboard.type('mixed: answers to amber and to bar, unlike its neighbours');
+    await page.keyboard.press('Control+Enter');
+    await page.locator('[data-review-dock] [data-note-html]', { hasText: 'answers to amber and to bar, unlike its neighbours' }).waitFor();
+    expect(await page.locator('[data-reviewer-dialog]').count()).toBe(0);
+    expect(page.url()).toContain('#/roster');
+    await shot('review-after-scan-light');
+    await page.keyboard.press('Escape');
+    await page.locator('[data-review-dock]').waitFor({ state: 'detached' });
   });
 
   it('lists units ranked, and sorts by a column', async () => {

@@ -100,6 +100,22 @@ describe('Team review in Chromium (browser mode)', () => {
     expect(JSON.parse(fs.readFileSync(path.join(home, 'preferences.json'), 'utf8')).reviewer).toBe('Rosa');
   });
 
+  it('the ? sheet says which number key sets which status, and hands the keyboard back when closed', async () => {
+    await page.locator('[data-row="0"] .layer').click();
+    await page.keyboard.press('?');
+    const sheet = page.locator('[role="dialog"][aria-label="Keys"]');
+    await sheet.waitFor();
+    const text = await sheet.textContent();
+    const statuses = (await api('review.vocabulary', {})).statuses.map((s: { name: string }) => s.name);
+    expect(statuses.length).toBe(5);
+    statuses.forEach((s: string, i: number) => expect(text).toContain(`${i + 1}status “${s}” (roster)`));
+    await shot('keys-light');
+    await page.keyboard.press('m'); // inside the sheet: not a shortcut
+    expect(page.url()).toContain('#/roster');
+    await page.keyboard.press('Escape');
+    await sheet.waitFor({ state: 'detached' });
+  });
+
   it('tags the unit under the cursor with t, in the roster', async () => {
     const key = (await page.locator('[data-row="0"]').getAttribute('data-unit'))!;
     unit = { layer: key.slice(0, key.lastIndexOf(':')), unit: Number(key.slice(key.lastIndexOf(':') + 1)) };
@@ -200,6 +216,11 @@ describe('Team review in Chromium (browser mode)', () => {
     await page.locator('[data-merge-conflicts] [data-conflict="note"]').waitFor();
     // The status change does not collide and merges as it is.
     expect(await page.locator('[data-changes]').textContent()).toContain('looking');
+    // The choices in our own words, not a version-control tool's.
+    const choices = await page.locator('[data-merge-conflicts] [data-conflict="note"]').textContent();
+    expect(choices).toContain('As this study has it');
+    expect(choices).toContain('As the bundle has it');
+    expect(choices).not.toMatch(/keep (mine|theirs)/i);
     await shot('review-merge-conflict-light');
     await setTheme('dark');
     await shot('review-merge-conflict-dark');

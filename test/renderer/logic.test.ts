@@ -162,11 +162,11 @@ describe('colours and theme', () => {
     const labels = Array.from({ length: 12 }, (_, i) => `label${i}`);
     for (const theme of ['light', 'dark'] as const) expect(new Set(labels.map((l) => labelColor(l, theme, labels))).size).toBe(12);
     // A label outside the list is coloured by its hash: FNV-1a 32 of "foobar" is 0xbf9cf968 (FNV reference test
-    // vectors, from memory; checked with an independent Python implementation), 0xbf9cf968 mod 12 = 4 → the fifth
+    // vectors, from memory; checked with an independent Python implementation), 0xbf9cf968 mod 16 = 8 → the ninth
     // palette entry of each theme (app/renderer/src/lib/colors.ts PALETTE).
     expect(fnv1a('foobar')).toBe(0xbf9cf968);
-    expect(labelColor('foobar', 'light')).toBe('#b58a1c');
-    expect(labelColor('foobar', 'dark')).toBe('#e0bf5a');
+    expect(labelColor('foobar', 'light')).toBe('#7f8a2a');
+    expect(labelColor('foobar', 'dark')).toBe('#bcc46a');
   });
   it('follows the system until the user chooses', () => {
     expect(initialTheme(memoryStorage(), true)).toBe('dark');

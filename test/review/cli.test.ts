@@ -19,12 +19,14 @@ function skein(args: string[], home: string) {
 describe('skein review and skein report', () => {
   let dir: string;
   let mine: string;
+  let study: string;
   let theirs: string;
   let anaHome: string;
   let benHome: string;
 
   beforeAll(async () => {
     const s = await scannedStudy();
+    study = s.study;
     dir = tempDir('skein-cli-review-');
     mine = copyStudy(s.study, path.join(dir, 'ana.study'));
     theirs = copyStudy(s.study, path.join(dir, 'ben.study'));
@@ -66,8 +68,8 @@ describe('skein review and skein report', () => {
     r = skein(['review', 'import', theirs, anaBundle], benHome);
     expect(r.code).toBe(3);
     expect(r.out).toMatch(/2 conflicts left open/);
-    expect(r.out).toContain('planted unit 3  note:  here "only two?" (ben)  ·  theirs "three concepts" (ana)');
-    expect(r.out).toContain('planted unit 3  status:  here "doubtful" (ben)  ·  theirs "confirmed" (ana)');
+    expect(r.out).toContain('planted unit 3  note:  here "only two?" (ben)  ·  bundle "three concepts" (ana)');
+    expect(r.out).toContain('planted unit 3  status:  here "doubtful" (ben)  ·  bundle "confirmed" (ana)');
     expect(r.out).toMatch(/planted unit 3  tag:mixed: not tagged → tagged \(ana\)/);
     expect(r.out).toMatch(/planted unit 1  tag:for-meeting: not tagged → tagged \(ana\)/);
     expect(r.err).toMatch(/2 conflicts left open\. Decide them/);
@@ -82,9 +84,13 @@ describe('skein review and skein report', () => {
     r = skein(['review', 'list', theirs, '--filter', 'conflicted'], benHome);
     expect(r.out).toMatch(/planted\t3\tdoubtful\tfollow-up,mixed\tben\tCONFLICT note,status/);
 
-    r = skein(['review', 'resolve', theirs, 'planted', '3', 'status', 'theirs'], benHome);
+    r = skein(['review', 'resolve', theirs, 'planted', '3', 'status', 'mine-or-yours'], benHome);
+    expect(r.code).toBe(2);
+    expect(r.err).toContain('here (this study\'s value) or bundle (the bundle\'s), got "mine-or-yours"');
+    r = skein(['review', 'resolve', theirs, 'planted', '3', 'status', 'bundle'], benHome);
     expect(r.code, r.err).toBe(0);
-    r = skein(['review', 'import', theirs, anaBundle, '--keep', 'mine'], benHome);
+    expect(r.err).toContain("kept the bundle's value");
+    r = skein(['review', 'import', theirs, anaBundle, '--keep', 'here'], benHome);
     expect(r.code, r.out + r.err).toBe(0);
     expect(r.out).toMatch(/resolved 1 conflict/);
     const show = JSON.parse(skein(['review', 'show', theirs, 'planted', '3', '--json'], benHome).out);
@@ -125,9 +131,23 @@ describe('skein review and skein report', () => {
     expect(r.err).toMatch(/wrote 2 units/);
     r = skein(['report', mine, '--out', html, '--status', 'confirmed'], anaHome);
     expect(r.err).toMatch(/wrote 1 unit/);
+    // As the README shows it: no selection writes the study's results, its top-ranked units with their reviews.
+    const ranked = JSON.parse(skein(['rank', mine, '--json'], anaHome).out) as unknown[];
     r = skein(['report', mine, '--out', html], anaHome);
-    expect(r.code).toBe(2);
-    expect(r.err).toMatch(/say which units: --tag T, --status S/);
+    expect(r.code, r.err).toBe(0);
+    const n = Math.min(20, ranked.length);
+    expect(r.err).toMatch(new RegExp(`wrote ${n} units? to`));
+    expect(fs.readFileSync(html, 'utf8')).toContain(`${n} selected units`);
+    r = skein(['report', mine, '--out', html, '--top', '1'], anaHome);
+    expect(r.err).toMatch(/wrote 1 unit to/);
+    // --all on a study nobody reviewed says so and writes nothing.
+    const fresh = copyStudy(study, path.join(dir, 'fresh.study'));
+    const none = path.join(dir, 'none.html');
+    r = skein(['report', fresh, '--out', none, '--all'], anaHome);
+    expect(r.code).toBe(1);
+    expect(r.err).toMatch(/has a review yet, so --all selects nothing and no report was written/);
+    expect(fs.existsSync(none)).toBe(false);
+    expect(skein(['help'], anaHome).out).toMatch(/skein report .*--layer L/);
     r = skein(['report', mine, '--out', html, '--status', 'agreed'], anaHome);
     expect(r.code).toBe(1);
     expect(r.err).toMatch(/filter\.statuses\.0: Invalid request report\.write: a status is one of/);

@@ -42,3 +42,13 @@ export function histogramTraces(d: UnitDistributions, colorOf: (label: string) =
     })),
   ];
 }
+
+/**
+ * A probe's labels for its caption: the unit's driver labels first (in the drivers' order, marked), then the rest in
+ * their own order; `omit` leaves out labels every card of a strip shares. Nothing is cut: the caption wraps.
+ */
+export function captionLabels(labels: readonly string[], drivers: readonly string[], omit: readonly string[] = []): { label: string; driver: boolean }[] {
+  const kept = labels.filter((l) => !omit.includes(l));
+  const first = drivers.filter((d) => kept.includes(d));
+  return [...first.map((label) => ({ label, driver: true })), ...kept.filter((l) => !first.includes(l)).map((label) => ({ label, driver: false }))];
+}

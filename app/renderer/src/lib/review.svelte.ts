@@ -129,7 +129,15 @@ export class ReviewSession {
     this.mark = readMergeMark(storage, study);
   }
 
-  async load(): Promise<void> {
+  #loading: Promise<void> | null = null;
+
+  /** Reads the reviewer's name, the vocabulary and the review list, once (later calls wait for the same read). */
+  load(): Promise<void> {
+    this.#loading ??= this.#read();
+    return this.#loading;
+  }
+
+  async #read(): Promise<void> {
     try {
       const [prefs, vocabulary] = await Promise.all([call('prefs.get', {}), call('review.vocabulary', {})]);
       this.reviewer = prefs.reviewer;

@@ -35,6 +35,19 @@ export class StudySession {
     this.scrollTop = 0;
   }
 
+  /** The model and probe set of the scan screen this study was opened from (so other screens can send the user back). */
+  scanInputs = $state.raw<{ model: string; probes: string } | null>(null);
+
+  /** The study has no scores yet: scanned without scoring, or not written at all (opened on the scan screen). */
+  get unscanned(): boolean {
+    return this.summary ? !this.summary.scored : this.scanInputs !== null && this.error !== null;
+  }
+
+  /** Where "Choose tensors and scan" goes, when known. */
+  get scanRoute(): { model: string; probes: string } | null {
+    return this.summary ? { model: this.summary.model.path, probes: this.summary.probes.dir } : this.scanInputs;
+  }
+
   constructor(path: string) {
     this.path = path;
   }
