@@ -7,7 +7,7 @@ import { readScoreKey, writeScores } from '../store/scores.ts';
 import { Progress, type ProgressReport } from '../extract/progress.ts';
 import { scoreUnitPartial, finishLayer, rankUnits, buildRelatedness, defaultScoreOptions, createScratch } from './index.ts';
 import type { LabelMatrix, ScoreOptions, UnitPartial, UnitScore } from './types.ts';
-import { mulberry32 } from './random.ts';
+import { mulberry32 } from '../random.ts';
 import { classifyUnit } from './kind.ts';
 
 export interface ScoreJobHooks {

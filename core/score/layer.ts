@@ -3,7 +3,7 @@
  * concept count), and the ranking across layers.
  */
 import { SkeinError } from '../errors.ts';
-import { mulberry32, normalSource } from './random.ts';
+import { gaussian, mulberry32 } from '../random.ts';
 import { benjaminiHochberg, leinsterCobbold, massShares } from './stats.ts';
 import { validateScoreOptions } from './unit.ts';
 import type { Driver, JointTerm, LabelStat, Modulator, Relatedness, ScoreOptions, UnitFormula, UnitPartial, UnitScore } from './types.ts';
@@ -104,7 +104,8 @@ function percentile(sorted: Float64Array, fraction: number): number {
  */
 function bootstrap(drivers: Driver[], similarity: Float64Array, order: number, seed: number): { count: [number, number]; shares: [number, number][] } {
   const k = drivers.length;
-  const normal = normalSource(mulberry32(0x5eed ^ Math.imul(seed + 1, 2654435761)));
+  const uniform = mulberry32(0x5eed ^ Math.imul(seed + 1, 2654435761));
+  const normal = () => gaussian(uniform);
   const counts = new Float64Array(BOOTSTRAP_REPS);
   const shares = Array.from({ length: k }, () => new Float64Array(BOOTSTRAP_REPS));
   const effects = new Float64Array(k);
