@@ -40,6 +40,28 @@ export interface LabelTable {
   labelIds: Int32Array;
 }
 
+/** Longest label name accepted: names are shown in tables, chips and messages (a limit of our choosing). */
+export const MAX_LABEL_LENGTH = 200;
+
+/** A label as messages quote it: at most 60 characters, so a runaway name cannot flood the terminal. */
+export function shortLabel(label: string): string {
+  return label.length <= 60 ? label : `${label.slice(0, 57)}… (${label.length} characters)`;
+}
+
+/** Refuse names no screen or file can show faithfully: control characters (C0, DEL, C1) and over-long names. */
+function checkLabelText(file: string, name: string, line: number, label: string): void {
+  const control = /[\u0000-\u001f\u007f-\u009f]/.exec(label);
+  if (control) {
+    const code = control[0].charCodeAt(0).toString(16).toUpperCase().padStart(4, '0');
+    throw probesError(file, `line ${line}`,
+      `${name}: label "${shortLabel(label.replace(/[\u0000-\u001f\u007f-\u009f]/g, '\u2426'))}" contains the control character U+${code} at position ${control.index + 1}; remove it (labels are plain text on one line)`);
+  }
+  if (label.length > MAX_LABEL_LENGTH) {
+    throw probesError(file, `line ${line}`,
+      `${name}: label "${shortLabel(label)}" is longer than ${MAX_LABEL_LENGTH} characters; shorten it (put long descriptions in concepts.csv's description column)`);
+  }
+}
+
 /** labels.csv → sorted label names and CSR label ids per probe (each probe's ids ascending). */
 export function buildLabels(table: CsvTable, count: number, warnings: string[]): LabelTable {
   const name = path.basename(table.file);
@@ -49,11 +71,12 @@ export function buildLabels(table: CsvTable, count: number, warnings: string[]):
     const probe = parseProbeIndex(table, row, count);
     const label = row.values.label ?? '';
     if (label === '') throw probesError(table.file, `line ${row.line}`, `${name}: the label is empty; give every row a label name or delete the row`);
+    checkLabelText(table.file, name, row.line, label);
     const key = `${probe}\u0000${label}`;
     const earlier = firstLine.get(key);
     if (earlier !== undefined) {
       throw probesError(table.file, `line ${row.line}`,
-        `${name}: probe ${probe} has label "${label}" twice (lines ${earlier} and ${row.line}); delete one of the rows`);
+        `${name}: probe ${probe} has label "${shortLabel(label)}" twice (lines ${earlier} and ${row.line}); delete one of the rows`);
     }
     firstLine.set(key, row.line);
     pairs.push({ probe, label });

@@ -68,8 +68,15 @@ describe('openProbeSet: a valid folder', () => {
   });
 
   it('gives the first line of a record whose quoted cell spans lines', () => {
-    const dir = probeSetDir({ 'labels.csv': 'probe,label\n0,"two\nline label"\n\n1,round\r\n1,round\n' });
-    expectProbesError(() => openProbeSet(dir), { file: path.join(dir, 'labels.csv'), where: 'line 6', message: /lines 5 and 6/ });
+    // A quoted cell may hold a line break (RFC 4180, section 2.6); later records keep their own line numbers.
+    const dir = probeSetDir({
+      'manifest.json': manifest({ concepts: 'concepts.csv' }),
+      'concepts.csv': 'label,group,description\nround,shape,"two\nline description"\n\nflat,shape,flat\r\nround,shape,again\n',
+    });
+    expectProbesError(() => openProbeSet(dir), { file: path.join(dir, 'concepts.csv'), where: 'line 6', message: /"round" is listed twice \(lines 2 and 6\)/ });
+    // A label itself may not span lines: the error names the record's first line and the character.
+    const label = probeSetDir({ 'labels.csv': 'probe,label\n0,"two\nline label"\n\n1,round\r\n1,round\n' });
+    expectProbesError(() => openProbeSet(label), { file: path.join(label, 'labels.csv'), where: 'line 2', message: /control character U\+000A at position 4/ });
   });
 });
 
@@ -93,6 +100,23 @@ describe('openProbeSet: each validation error names the file, the place and the 
     expectProbesError(() => openProbeSet(header), { file: path.join(header, 'labels.csv'), where: 'header', message: /no "label" column.*found: probe,name/ });
     const none = probeSetDir({ 'labels.csv': 'probe,label\n' });
     expectProbesError(() => openProbeSet(none), { file: path.join(none, 'labels.csv'), where: undefined, message: /has no labels/ });
+  });
+
+  it('a label with a control character or of a megabyte is refused, and the message stays one short line', () => {
+    // Control characters: Unicode's Cc category is U+0000–U+001F and U+007F–U+009F (Unicode Standard, section 23.1).
+    const nul = probeSetDir({ 'labels.csv': 'probe,label\n0,round\n1,ro\u0000und\n' });
+    expectProbesError(() => openProbeSet(nul), { file: path.join(nul, 'labels.csv'), where: 'line 3', message: /label "ro\u2426und" contains the control character U\+0000 at position 3/ });
+    const c1 = probeSetDir({ 'labels.csv': 'probe,label\n0,\u0085next\n' });
+    expectProbesError(() => openProbeSet(c1), { file: path.join(c1, 'labels.csv'), where: 'line 2', message: /control character U\+0085 at position 1/ });
+    const huge = 'x'.repeat(1 << 20);
+    const big = probeSetDir({ 'labels.csv': `probe,label\n0,round\n1,${huge}\n` });
+    let message = '';
+    try { openProbeSet(big); } catch (e) { message = (e as Error).message; }
+    expect(message).toMatch(/label "x{57}… \(1048576 characters\)" is longer than 200 characters/);
+    expect(message.length).toBeLessThan(400);
+    // 200 characters is still a label.
+    const edge = probeSetDir({ 'labels.csv': `probe,label\n0,${'y'.repeat(200)}\n` });
+    expect(openProbeSet(edge).labels).toEqual(['y'.repeat(200)]);
   });
 
   it('invalid UTF-8 with its byte offset and line', () => {
