@@ -20,21 +20,25 @@ export interface ErrorInfo {
   file?: string;
   /** Line (1-based) or field in that file, when known: "line 12", "inputs.x", "header.shape". */
   where?: string;
+  /** The original text of a third-party failure (e.g. onnxruntime's), shown by the CLI's --verbose. */
+  detail?: string;
 }
 
 export class SkeinError extends Error implements ErrorInfo {
   readonly code: ErrorCode;
   readonly file?: string;
   readonly where?: string;
+  readonly detail?: string;
   constructor(info: ErrorInfo) {
     super(info.message);
     this.name = 'SkeinError';
     this.code = info.code;
     this.file = info.file;
     this.where = info.where;
+    this.detail = info.detail;
   }
   toJSON(): ErrorInfo {
-    return { code: this.code, message: this.message, file: this.file, where: this.where };
+    return { code: this.code, message: this.message, file: this.file, where: this.where, ...(this.detail ? { detail: this.detail } : {}) };
   }
   /** "file (where): message" — the one-line form the CLI prints. */
   oneLine(): string {

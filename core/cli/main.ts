@@ -26,6 +26,8 @@ ${ABLATE_HELP}
 ${LENS_HELP}
 ${DICTIONARY_HELP}
 
+  --verbose (any command)        on failure, also print the original text of an onnxruntime error
+
 Scores are statistical hypotheses about the model on this probe set, not proof: check a unit before pruning or
 trusting it.`;
 
@@ -103,7 +105,10 @@ function printUnit(u: UnitDetail): void {
   console.log('\nThese are statistical hypotheses about the model on this probe set, not proof.');
 }
 
-export async function main(argv: string[]): Promise<number> {
+export async function main(argvIn: string[]): Promise<number> {
+  // --verbose anywhere: a failure also prints the third-party text it was translated from.
+  const verbose = argvIn.includes('--verbose');
+  const argv = argvIn.filter((a) => a !== '--verbose');
   const [command, ...rest] = argv;
   const api = createApi();
   try {
@@ -203,6 +208,7 @@ export async function main(argv: string[]): Promise<number> {
     const info = toErrorInfo(e);
     const loc = [info.file, info.where].filter(Boolean).join(', ');
     process.stderr.write(`skein: ${loc ? `${loc}: ` : ''}${info.message}\n`);
+    if (verbose && info.detail) process.stderr.write(`skein: the original message: ${info.detail}\n`);
     return info.code === 'cancelled' ? 130 : 1;
   }
 }

@@ -167,11 +167,41 @@ export async function createSession(modelBytes: Uint8Array, opts: SessionOptions
         message: `onnxruntime (CPU) cannot run operator ${list} used by this model. Re-export the model with standard ONNX operators (or register the custom op's library), then open it again.`,
       });
     }
-    throw new SkeinError({
-      code: 'model', file,
-      message: `onnxruntime could not load the model: ${detail}. Check that the model opens in onnxruntime on CPU, or re-export it.`,
-    });
+    const plain = plainOrtMessage(detail);
+    throw new SkeinError({ code: 'model', file, where: plain.where, message: plain.message, detail });
   }
+}
+
+/**
+ * onnxruntime's load errors carry its source path, a C++ signature and an error-code prefix. Reduce one to a line a
+ * user can act on, naming the op or opset; the caller keeps the original as `detail`.
+ */
+export function plainOrtMessage(detail: string): { message: string; where?: string } {
+  const opset = /Opset (\d+) is under development[\s\S]*?support for domain (\S+) is till opset (\d+)/.exec(detail);
+  if (opset) {
+    return {
+      where: 'opset_import',
+      message: `The model declares opset ${opset[1]} for domain ${opset[2]}, and this onnxruntime supports up to opset ${opset[3]}. Re-export the model at opset ${opset[3]} or lower, then open it again.`,
+    };
+  }
+  let text = detail.replace(/^\[ONNXRuntimeError\]\s*:\s*\d+\s*:\s*\w+\s*:\s*/, '');
+  const source = /\S+\.(?:cc|cpp|h|hpp):\d+\s+/.exec(text);
+  if (source) {
+    // Drop "path:line", then the C++ signature up to the parenthesis that closes its parameter list.
+    let i = text.indexOf('(', source.index + source[0].length);
+    let depth = 0;
+    for (; i >= 0 && i < text.length; i++) {
+      if (text[i] === '(') depth++;
+      else if (text[i] === ')' && --depth === 0) break;
+    }
+    text = (text.slice(0, source.index) + (i >= 0 && i < text.length ? text.slice(i + 1).replace(/^\s*const\b/, '') : '')).trim();
+  }
+  text = text.replace(/\s+/g, ' ').trim().replace(/[.\s]+$/, '');
+  const node = /Node \(([^)]*)\) Op \(([^)]*)\)/.exec(text);
+  return {
+    where: node ? `node ${node[1] || node[2]}` : undefined,
+    message: `onnxruntime could not load the model: ${text || 'no reason given'}. Check that the model opens in onnxruntime on CPU, or re-export it (skein --verbose shows onnxruntime's own message).`,
+  };
 }
 
 /**

@@ -149,3 +149,18 @@ describe('float16 tensors', () => {
     await session.release();
   });
 });
+
+describe("plainOrtMessage: onnxruntime's load errors without source paths or C++ signatures", () => {
+  it('drops the error-code prefix, the path:line and the signature, and names the node', async () => {
+    const { plainOrtMessage } = await import('../../core/model/session.ts');
+    // The shape of onnxruntime's messages: "[ONNXRuntimeError] : code : NAME : path:line signature reason" (seen with onnxruntime-node 1.30).
+    const raw = '[ONNXRuntimeError] : 1 : FAIL : /onnxruntime_src/onnxruntime/core/graph/graph.cc:1542 void onnxruntime::Graph::InitializeStateFromModelFileGraphProto(std::function<void (int)>, const std::vector<int>&) const This is an invalid model. Node (act) Op (Relu) has 3 inputs.\n';
+    expect(plainOrtMessage(raw)).toEqual({
+      where: 'node act',
+      message: "onnxruntime could not load the model: This is an invalid model. Node (act) Op (Relu) has 3 inputs. Check that the model opens in onnxruntime on CPU, or re-export it (skein --verbose shows onnxruntime's own message).",
+    });
+    // A message with no source path passes through whole.
+    expect(plainOrtMessage('Node (mm) Op (MatMul) [ShapeInferenceError] Incompatible dimensions for matrix multiplication').message)
+      .toBe("onnxruntime could not load the model: Node (mm) Op (MatMul) [ShapeInferenceError] Incompatible dimensions for matrix multiplication. Check that the model opens in onnxruntime on CPU, or re-export it (skein --verbose shows onnxruntime's own message).");
+  });
+});

@@ -71,6 +71,23 @@ describe('a model that cannot run discards nothing', () => {
     });
   }
 
+  it("translates onnxruntime's refusal into one line naming the opset; --verbose adds onnxruntime's own text", () => {
+    // onnxruntime prints its source path and a C++ signature before the reason (seen with onnxruntime-node 1.30).
+    const bad = path.join(dir, 'broken-opset-cli.onnx');
+    fs.writeFileSync(bad, brokenModel('opset'));
+    const run = (extra: string[]) => spawnSync(process.execPath, [bin, 'scan', bad, probes, '--study', path.join(dir, 'cli-opset.study'), '--layers', 'planted', ...extra], { encoding: 'utf8' });
+    const plain = run([]);
+    expect(plain.status).toBe(1);
+    const lines = plain.stderr.trim().split('\n');
+    expect(lines).toHaveLength(1);
+    expect(lines[0]).toMatch(/^skein: .*broken-opset-cli\.onnx, opset_import: The model declares opset 99 for domain ai\.onnx, and this onnxruntime supports up to opset \d+\. Re-export the model at opset \d+ or lower/);
+    expect(lines[0]).not.toMatch(/onnxruntime_src|::|\.h:\d+/);
+    const verbose = run(['--verbose']);
+    expect(verbose.status).toBe(1);
+    expect(verbose.stderr.trim().split('\n')[1]).toMatch(/^skein: the original message: .*model_load_utils\.h:\d+ .*ValidateOpsetForDomain\(/);
+    expect(fs.existsSync(path.join(dir, 'cli-opset.study'))).toBe(false);
+  });
+
   it('leaves no study file behind when a scan of a new study fails', async () => {
     const bad = path.join(dir, 'broken-new.onnx');
     fs.writeFileSync(bad, brokenModel('op'));
