@@ -4,6 +4,7 @@
  * reads or writes those tables. Layout and its costs: core/store/schema.ts.
  */
 import type Database from 'better-sqlite3';
+import { crc32 } from 'node:zlib';
 import { SkeinError } from '../errors.ts';
 import { blobToUint32, now } from './study.ts';
 import { decodeFloats, decodeFloatsInto, encodeFloats } from './codec.ts';
@@ -28,7 +29,7 @@ export interface ChunkBlock {
  * chunks only, so a resume never mixes partial work in.
  */
 export function writeChunk(db: Database.Database, chunk: number, length: number, blocks: ChunkBlock[]): void {
-  const insertAct = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, enc, argmax) VALUES (?, ?, ?, ?, ?, ?)`);
+  const insertAct = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, enc, argmax, crc) VALUES (?, ?, ?, ?, ?, ?, ?)`);
   const insertDone = db.prepare(`INSERT OR REPLACE INTO chunk_done (layer_id, chunk) VALUES (?, ?)`);
   const touch = db.prepare(`UPDATE run SET updated_at = ? WHERE id = 1`);
   // Activations are a cache a rerun recomputes: their commits skip the fsync (WAL + NORMAL still never corrupts; a
@@ -49,7 +50,7 @@ function writeChunkRows(db: Database.Database, insertAct: Database.Statement, in
         const vals = b.values.subarray(u * length, (u + 1) * length);
         const am = b.argmax ? b.argmax.subarray(u * length, (u + 1) * length) : null;
         const e = encodeFloats(vals);
-        insertAct.run(b.layerId, u, chunk, e.blob, e.enc, am ? Buffer.from(am.buffer, am.byteOffset, am.byteLength) : null);
+        insertAct.run(b.layerId, u, chunk, e.blob, e.enc, am ? Buffer.from(am.buffer, am.byteOffset, am.byteLength) : null, crc32(e.blob));
       }
       insertDone.run(b.layerId, chunk);
     }
@@ -62,10 +63,10 @@ function writeChunkRows(db: Database.Database, insertAct: Database.Statement, in
  * scan). Call markChunksDone once every unit of the layer is written.
  */
 export function writeUnitChunks(db: Database.Database, layerId: number, unit: number, chunkSize: number, values: Float32Array): void {
-  const ins = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, enc, argmax) VALUES (?, ?, ?, ?, ?, NULL)`);
+  const ins = db.prepare(`INSERT OR REPLACE INTO activation (layer_id, unit, chunk, vals, enc, argmax, crc) VALUES (?, ?, ?, ?, ?, NULL, ?)`);
   for (let c = 0; c * chunkSize < values.length; c++) {
     const e = encodeFloats(values.subarray(c * chunkSize, Math.min(values.length, (c + 1) * chunkSize)));
-    ins.run(layerId, unit, c, e.blob, e.enc);
+    ins.run(layerId, unit, c, e.blob, e.enc, crc32(e.blob));
   }
 }
 
@@ -75,13 +76,28 @@ export function markChunksDone(db: Database.Database, layerId: number, chunks: n
   db.transaction(() => { for (const c of chunks) ins.run(layerId, c); })();
 }
 
+function layerName(db: Database.Database, layerId: number): string {
+  return (db.prepare(`SELECT name FROM layer WHERE id = ?`).pluck().get(layerId) as string | undefined) ?? String(layerId);
+}
+
+/** The blob as stored, once its CRC-32 matches what the scan wrote (rows from before migration 9 carry none). */
+function verified(db: Database.Database, layerId: number, unit: number, chunk: number, vals: Buffer, crc: number | null): Buffer {
+  if (crc !== null && crc32(vals) !== crc) {
+    throw new SkeinError({
+      code: 'study', file: db.name, where: `layer ${layerName(db, layerId)}, unit ${unit}, chunk ${chunk}`,
+      message: 'The cached activations here are damaged: they no longer match the checksum the scan wrote (the file was altered, or its disk failed). Scan the model again into a new study file, and carry the reviews over with skein review export / import.',
+    });
+  }
+  return vals;
+}
+
 /** Reads one unit's activations over all probes (probe order) into `out` (length N), chunk by chunk. */
 export function readUnit(db: Database.Database, binding: StudyBinding, layerId: number, unit: number, out?: Float32Array): Float32Array {
   const n = binding.probeCount;
   const values = out ?? new Float32Array(n);
-  const rows = db.prepare(`SELECT chunk, vals, enc FROM activation WHERE layer_id = ? AND unit = ? ORDER BY chunk`).raw().iterate(layerId, unit) as IterableIterator<[number, Buffer, number]>;
+  const rows = db.prepare(`SELECT chunk, vals, enc, crc FROM activation WHERE layer_id = ? AND unit = ? ORDER BY chunk`).raw().iterate(layerId, unit) as IterableIterator<[number, Buffer, number, number | null]>;
   let seen = 0;
-  for (const [chunk, vals, enc] of rows) seen += decodeFloatsInto(enc, vals, values, chunk * binding.chunkSize);
+  for (const [chunk, vals, enc, crc] of rows) seen += decodeFloatsInto(enc, verified(db, layerId, unit, chunk, vals, crc), values, chunk * binding.chunkSize);
   if (seen !== n) {
     throw new SkeinError({ code: 'study', where: `layer ${layerId} unit ${unit}`, message: `The scan of this layer is incomplete (${seen} of ${n} probes). Rerun the scan to finish it.` });
   }
@@ -90,7 +106,8 @@ export function readUnit(db: Database.Database, binding: StudyBinding, layerId: 
 
 /** Every unit's values for one chunk of probes, in unit order (the probe-major export reads a layer this way). */
 export function readLayerChunk(db: Database.Database, layerId: number, chunk: number): Float32Array[] {
-  return (db.prepare(`SELECT vals, enc FROM activation WHERE layer_id = ? AND chunk = ? ORDER BY unit`).raw().all(layerId, chunk) as [Buffer, number][]).map(([vals, enc]) => decodeFloats(enc, vals));
+  return (db.prepare(`SELECT unit, vals, enc, crc FROM activation WHERE layer_id = ? AND chunk = ? ORDER BY unit`).raw().all(layerId, chunk) as [number, Buffer, number, number | null][])
+    .map(([unit, vals, enc, crc]) => decodeFloats(enc, verified(db, layerId, unit, chunk, vals, crc)));
 }
 
 /**
@@ -100,9 +117,9 @@ export function readLayerChunk(db: Database.Database, layerId: number, chunk: nu
 export function* readChunkSample(db: Database.Database, layerId: number, chunks: number[], unit?: number): Generator<{ unit: number; chunk: number; values: Float32Array }> {
   const placeholders = chunks.map(() => '?').join(',');
   const rows = unit === undefined
-    ? db.prepare(`SELECT unit, chunk, vals, enc FROM activation WHERE layer_id = ? AND chunk IN (${placeholders}) ORDER BY unit, chunk`).raw().iterate(layerId, ...chunks)
-    : db.prepare(`SELECT unit, chunk, vals, enc FROM activation WHERE layer_id = ? AND unit = ? AND chunk IN (${placeholders}) ORDER BY chunk`).raw().iterate(layerId, unit, ...chunks);
-  for (const [u, c, vals, enc] of rows as IterableIterator<[number, number, Buffer, number]>) yield { unit: u, chunk: c, values: decodeFloats(enc, vals) };
+    ? db.prepare(`SELECT unit, chunk, vals, enc, crc FROM activation WHERE layer_id = ? AND chunk IN (${placeholders}) ORDER BY unit, chunk`).raw().iterate(layerId, ...chunks)
+    : db.prepare(`SELECT unit, chunk, vals, enc, crc FROM activation WHERE layer_id = ? AND unit = ? AND chunk IN (${placeholders}) ORDER BY chunk`).raw().iterate(layerId, unit, ...chunks);
+  for (const [u, c, vals, enc, crc] of rows as IterableIterator<[number, number, Buffer, number, number | null]>) yield { unit: u, chunk: c, values: decodeFloats(enc, verified(db, layerId, u, c, vals, crc)) };
 }
 
 /** Argmax locations of one unit (conv/sequence layers), or null when the layer keeps none. */

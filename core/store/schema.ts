@@ -236,6 +236,11 @@ export const migrations: string[] = [
     updated_at TEXT NOT NULL
   );
   `,
+  // 8 → 9: a CRC-32 of each activation blob, written by the scan and checked on every read, so a damaged page of a
+  // study is refused instead of read as wrong values. NULL in rows written before this version (not checked).
+  `
+  ALTER TABLE activation ADD COLUMN crc INTEGER;
+  `,
 ];
 
 export const SCHEMA_VERSION = migrations.length;
