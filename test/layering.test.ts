@@ -119,7 +119,6 @@ export const SQL_ALLOWED: Record<string, string> = {
   'test/renderer/screen-queries.test.ts': 'plants example rows no probe set can produce (image paths leaving the folder) to check the image reader refuses them',
   'test/store/migration.test.ts': 'writes a study in the schema-2 layout through the old migrations: no repository of today writes that layout',
   'test/pipeline/evidence.test.ts': 'writes the joint driver model\'s rows by hand in its table layout (known values, whether or not the scoring that writes them has run) to check the screens\' readers',
-  'test/support/joint-rows.ts': 'adds the joint driver model\'s interval and baseline rows by hand to a study scored without them, for the screen tests',
   'test/e2e/evidence.test.ts': 'reads the stored interval and baseline columns directly, independently of the reader the screens use',
   'bench/figures/storage.ts': 'measures alternative storage layouts (a bare blob table) side by side with the store\'s own',
 };

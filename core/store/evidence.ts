@@ -3,6 +3,7 @@
  * unit's neighbours in the stored ranking. Read-only.
  */
 import type Database from 'better-sqlite3';
+import { readUnitDrivers } from './drivers.ts';
 
 /** Probe indices carrying label `labelId`, ascending. */
 export function probesOfLabel(db: Database.Database, labelId: number): Int32Array {
@@ -24,8 +25,7 @@ export interface RankNeighbour { layer: string; unit: number; rank: number; conc
 
 /** The units ranked just above and just below position `rank`, and how many units are ranked in all. */
 export function rankNeighbours(db: Database.Database, rank: number): { total: number; above: RankNeighbour | null; below: RankNeighbour | null } {
-  const low = hasColumn(db, 'unit_score', 'concept_low') ? 'coalesce(s.concept_low, s.concept_count)' : 's.concept_count';
-  const stmt = db.prepare(`SELECT l.name AS layer, s.unit, s.rank, s.concept_count AS conceptCount, ${low} AS conceptLow, s.evidence, s.dead, s.dense
+  const stmt = db.prepare(`SELECT l.name AS layer, s.unit, s.rank, s.concept_count AS conceptCount, coalesce(s.concept_low, s.concept_count) AS conceptLow, s.evidence, s.dead, s.dense
       FROM unit_score s JOIN layer l ON l.id = s.layer_id WHERE s.rank = ?`);
   const at = (r: number): RankNeighbour | null => {
     if (r < 0) return null;
@@ -39,22 +39,13 @@ export function rankNeighbours(db: Database.Database, rank: number): { total: nu
 
 /*
  * The joint driver model's stored extras (concept-count intervals, share intervals, modulators, nested labels, the
- * shuffled-label baseline) live in `unit_score.concept_low/high`, `unit_driver` and `layer_null`, which the joint
- * model's migration adds. Studies scored before it have none: each reader below returns null / empty for them, so the
- * screens show the extras exactly when the scores carry them.
+ * shuffled-label baseline) as the unit page and the layers screen read them; the driver rows and baselines come
+ * through core/store/drivers.ts, their repository. Every opened study is migrated, so the tables always exist;
+ * a unit or layer scored without the joint model simply has no rows.
  */
 
-function hasTable(db: Database.Database, table: string): boolean {
-  return !!db.prepare(`SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = ?`).get(table);
-}
-
-function hasColumn(db: Database.Database, table: string, column: string): boolean {
-  return (db.prepare(`SELECT name FROM pragma_table_info(?)`).pluck().all(table) as string[]).includes(column);
-}
-
-/** Each scored unit's 90% concept-count interval, keyed `${layerId}:${unit}`; null when the scores carry none. */
-export function readConceptIntervals(db: Database.Database): Map<string, { low: number; high: number }> | null {
-  if (!hasColumn(db, 'unit_score', 'concept_low')) return null;
+/** Each scored unit's 90% concept-count interval, keyed `${layerId}:${unit}`. */
+export function readConceptIntervals(db: Database.Database): Map<string, { low: number; high: number }> {
   const out = new Map<string, { low: number; high: number }>();
   for (const [layerId, unit, low, high] of db.prepare(`SELECT layer_id, unit, concept_low, concept_high FROM unit_score WHERE concept_low IS NOT NULL`).raw().iterate() as IterableIterator<[number, number, number, number]>) {
     out.set(`${layerId}:${unit}`, { low, high });
@@ -67,30 +58,14 @@ export interface JointModulatorRow { label: number[]; of: number[]; auroc: numbe
 export interface JointNestedRow { label: number[]; within: number[]; auroc: number }
 export interface JointExtras { drivers: JointDriverRow[]; modulators: JointModulatorRow[]; nested: JointNestedRow[] }
 
-/** One unit's rows of the normalised driver table in stored order, split by kind; null when the study has no such table. */
-export function readJointExtras(db: Database.Database, layerId: number, unit: number): JointExtras | null {
-  if (!hasTable(db, 'unit_driver')) return null;
-  const rows = db.prepare(`SELECT kind, labels, of_labels, share, share_low, share_high, auroc, q, effect, same_as FROM unit_driver
-      WHERE layer_id = ? AND unit = ? ORDER BY position`).all(layerId, unit) as {
-    kind: string; labels: string; of_labels: string | null; share: number | null; share_low: number | null; share_high: number | null;
-    auroc: number; q: number | null; effect: number | null; same_as: string | null;
-  }[];
+/** One unit's rows of the normalised driver table in stored order, split by kind. */
+export function readJointExtras(db: Database.Database, layerId: number, unit: number): JointExtras {
   const out: JointExtras = { drivers: [], modulators: [], nested: [] };
-  for (const r of rows) {
-    const labels = JSON.parse(r.labels) as number[];
-    const of = r.of_labels ? (JSON.parse(r.of_labels) as number[]) : [];
-    if (r.kind === 'driver') out.drivers.push({ labels, share: r.share, shareLow: r.share_low, shareHigh: r.share_high, sameAs: r.same_as ? JSON.parse(r.same_as) : [] });
-    else if (r.kind === 'modulator') out.modulators.push({ label: labels, of, auroc: r.auroc, q: r.q, effect: r.effect });
-    else if (r.kind === 'nested') out.nested.push({ label: labels, within: of, auroc: r.auroc });
+  for (const r of readUnitDrivers(db, layerId, unit)) {
+    const of = r.of ?? [];
+    if (r.kind === 'driver') out.drivers.push({ labels: r.labels, share: r.share, shareLow: r.shareLow, shareHigh: r.shareHigh, sameAs: r.sameAs });
+    else if (r.kind === 'modulator') out.modulators.push({ label: r.labels, of, auroc: r.auroc, q: r.q, effect: r.effect });
+    else out.nested.push({ label: r.labels, within: of, auroc: r.auroc });
   }
   return out;
-}
-
-export interface LayerBaselineRow { layerId: number; unitsSampled: number; mixedSampled: number; mixedExpected: number }
-
-/** The shuffled-label baseline per layer; empty when the scores carry none. */
-export function readLayerBaselines(db: Database.Database): LayerBaselineRow[] {
-  if (!hasTable(db, 'layer_null')) return [];
-  return (db.prepare(`SELECT layer_id, units_sampled, mixed_sampled, mixed_expected FROM layer_null ORDER BY layer_id`).raw().all() as number[][])
-    .map(([layerId, unitsSampled, mixedSampled, mixedExpected]) => ({ layerId, unitsSampled, mixedSampled, mixedExpected }));
 }

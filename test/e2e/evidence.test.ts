@@ -18,7 +18,6 @@ import { startServer, type RunningServer } from '../../app/server/index.ts';
 import { sampleDataDir } from '../../core/api/files.ts';
 import { runScan, createApi } from '../../core/api/index.ts';
 import { PLANTED_UNITS, plantedProbes, writePlanted } from '../support/fixtures.ts';
-import { ensureJointExtras } from '../support/joint-rows.ts';
 
 const repo = fileURLToPath(new URL('../../', import.meta.url));
 const shots = path.join(repo, 'test-output', 'screenshots');
@@ -57,8 +56,6 @@ describe('Unit evidence in Chromium (browser mode)', () => {
     // The scans are not what is tested here (app.test.ts scans through the screens).
     await runScan({ model: w.model, probes: w.probes, study: planted, layers: ['planted'], batch: 300 });
     await runScan({ model: path.join(sampleDataDir(), 'tiles-model.onnx'), probes: path.join(sampleDataDir(), 'tiles'), study: demo });
-    // The roster's interval and the strata's baseline: real ones when the scoring wrote them, else known ones by hand.
-    ensureJointExtras(demo);
     server = await startServer({ port: 0, roots: [sampleDataDir(), home], rendererDir, dataDir: home });
     context = await chromium.launchPersistentContext(path.join(tmp, 'chromium-profile'), {
       executablePath: CHROMIUM, headless: true, args: CHROMIUM_ARGS, viewport: { width: 1360, height: 860 }, colorScheme: 'light',

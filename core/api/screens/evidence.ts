@@ -11,7 +11,7 @@ import { readBinding, findLayer, labelNames, type StudyBinding } from '../../sto
 import { readUnit, readUnitArgmax } from '../../store/activations.ts';
 import { unitDetail, probeLabels } from './read-models.ts';
 import { probesOfLabel, probeDisplays, rankNeighbours, readJointExtras, readConceptIntervals, type RankNeighbour } from '../../store/evidence.ts';
-import { driverPresence, responseTable, type ResponseGroup } from '../../score/response.ts';
+import { driverPresence, responseTable, type DriverResponse, type ResponseGroup } from '../../score/response.ts';
 
 export type EvidenceRequest = z.infer<(typeof screenRequests)['unit.evidence']>;
 
@@ -23,7 +23,8 @@ export interface EvidenceExample {
   labels: string[];
 }
 
-export interface DriverEvidence {
+/** One driver's row of the response table (core/score/response.ts), with its name, stored share and example probes. */
+export interface DriverEvidence extends Omit<DriverResponse, 'examples'> {
   /** As the scores name it; a compound names its parts joined by " & ". */
   name: string;
   parts: string[];
@@ -33,12 +34,6 @@ export interface DriverEvidence {
   shareHigh: number | null;
   /** Other drivers the scores count as the same concept, their probes nearly coinciding (stored drivers only). */
   sameAs: string[];
-  alone: ResponseGroup;
-  withOthers: ResponseGroup;
-  effectAlone: number | null;
-  effectWithOthers: number | null;
-  aboveNoneAlone: number | null;
-  aboveNoneWithOthers: number | null;
   /** The highest-activating probes that carry this driver and none of the others. */
   examples: EvidenceExample[];
 }
@@ -93,7 +88,7 @@ export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, '
   const term = (ids: number[]) => ids.map((l) => names[l]).join(' & ');
   // The joint model's driver table, when the scores have one, names compounds and carries the share intervals.
   const joint = readJointExtras(db, layer.id, req.unit);
-  const stored = joint && joint.drivers.length === detail.drivers.length
+  const stored = joint.drivers.length === detail.drivers.length
     ? joint.drivers.map((d) => ({ name: term(d.labels), parts: d.labels.map((l) => names[l]), share: d.share, shareLow: d.shareLow, shareHigh: d.shareHigh, sameAs: d.sameAs.map(term) }))
     : detail.drivers.map((d) => ({ name: d.label, parts: [d.label], share: d.share as number | null, shareLow: null as number | null, shareHigh: null as number | null, sameAs: [] as string[] }));
   const chosen = req.drivers
@@ -114,7 +109,7 @@ export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, '
     return probeDisplays(db, probes).map((x, i) => ({ ...x, value: values[x.probe], location: locations[i], labels: labels[i] }));
   };
   const neighbours = rankNeighbours(db, detail.rank);
-  const interval = readConceptIntervals(db)?.get(`${layer.id}:${req.unit}`);
+  const interval = readConceptIntervals(db).get(`${layer.id}:${req.unit}`);
   return {
     layer: layer.name, unit: req.unit, probes: run.probeCount, driverSource: req.drivers ? 'request' : 'scores',
     drivers: chosen.map((d, i) => ({ ...d, ...table.drivers[i], examples: examplesOf(table.drivers[i].examples) })),
@@ -124,8 +119,8 @@ export function unitEvidence(db: Database.Database, req: Omit<EvidenceRequest, '
       conceptLow: interval?.low ?? detail.conceptCount, conceptHigh: interval?.high ?? detail.conceptCount,
       evidence: detail.evidence, flags: detail.flags, above: neighbours.above, below: neighbours.below,
     },
-    modulators: (joint?.modulators ?? []).map((m) => ({ label: term(m.label), of: term(m.of), auroc: m.auroc, q: m.q, effect: m.effect })),
-    nested: (joint?.nested ?? []).map((x) => ({ label: term(x.label), within: term(x.within), auroc: x.auroc })),
+    modulators: joint.modulators.map((m) => ({ label: term(m.label), of: term(m.of), auroc: m.auroc, q: m.q, effect: m.effect })),
+    nested: joint.nested.map((x) => ({ label: term(x.label), within: term(x.within), auroc: x.auroc })),
     formulas: EVIDENCE_FORMULAS,
   };
 }

@@ -16,7 +16,7 @@ import { readAllDrivers, readLayerNulls, readUnitDrivers, type DriverRecord } fr
 import { defaultScoreOptions } from '../../score/unit.ts';
 import { UNIT_KINDS, classifyUnit, type UnitKind } from '../../score/kind.ts';
 import { readExampleImage } from '../../probes/example-image.ts';
-import { readConceptIntervals, readLayerBaselines } from '../../store/evidence.ts';
+import { readConceptIntervals } from '../../store/evidence.ts';
 import { checkStoredPath } from '../context.ts';
 
 export { UNIT_KINDS, type UnitKind };
@@ -247,7 +247,7 @@ export function unitTable(db: Database.Database, file?: string): UnitTable {
     t.unit.push(s.unit);
     t.rank.push(s.rank);
     t.conceptCount.push(round4(s.conceptCount));
-    const ci = intervals?.get(`${s.layerId}:${s.unit}`);
+    const ci = intervals.get(`${s.layerId}:${s.unit}`);
     t.conceptLow.push(ci ? round4(ci.low) : null);
     t.conceptHigh.push(ci ? round4(ci.high) : null);
     t.selectivity.push(round4(s.selectivity));
@@ -522,7 +522,7 @@ export function layerStrata(db: Database.Database, file?: string): LayerStrata {
     if (cc > s.maxConceptCount) s.maxConceptCount = cc;
     s.histogram[binOf(cc, 0, width, bins)]++;
   }
-  const baselines = new Map(readLayerBaselines(db).map(({ layerId, ...b }) => [layerId, b]));
+  const baselines = new Map(readLayerNulls(db).map((b) => [b.layerId, { unitsSampled: b.unitsSampled, mixedSampled: b.mixedSampled, mixedExpected: b.mixedExpected }]));
   return {
     polysemanticAt: thresholds.polysemanticAt, thresholds,
     edges: Array.from({ length: bins + 1 }, (_, i) => i * width),
